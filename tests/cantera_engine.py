@@ -69,6 +69,7 @@ from functools import cache
 from typing import Any, Literal
 
 import cantera as ct
+import CoolProp
 import numpy as np
 from CoolProp.CoolProp import PropsSI
 from CoolProp.HumidAirProp import HAPropsSI
@@ -77,6 +78,7 @@ from scipy.optimize import brentq
 __all__ = [
     "CASING_LOSS_AT",
     "DRY_AIR",
+    "REAL_GAS_STATIONS",
     "T_REF",
     "OperatingPoint",
     "cantera_lhv",
@@ -100,6 +102,10 @@ DRY_AIR: Mapping[str, float] = {k: v / _DRY_SUM for k, v in _DRY.items()}
 #: combustor balance carries it) or ``"turbine"`` (after station 3).  Kept equal to the
 #: convention of ``models.gas_turbine`` (see that module's Notes).
 CASING_LOSS_AT: Literal["combustor", "turbine"] = "combustor"
+
+#: Stations whose states carry the real-gas departure of air when ``real_gas=True``: the
+#: compressor (1, 2, 2s) and/or the turbine (3, 4, 4s), as in ``models.gas_turbine``.
+REAL_GAS_STATIONS: frozenset[str] = frozenset({"compressor"})
 
 # our species names (models.species spelling) -> name in each Cantera data file
 _NASA_NAMES = {
@@ -179,25 +185,54 @@ class _Gas:
     def set_TP(self, T: float, p: float, n: np.ndarray) -> None:
         self.phase.TPX = T, p, n / n.sum()
 
-    def h_mass(self, T: float, p: float, n: np.ndarray) -> float:
-        """Absolute specific enthalpy [J/kg] of the mixture with mole amounts ``n``."""
-        self.set_TP(T, p, n)
-        return float(self.phase.enthalpy_mass)
+    def mean_molar_mass(self, n: np.ndarray) -> float:
+        """Mean molar mass [kg/mol] of the mole amounts ``n``."""
+        return float(n @ self.M / n.sum())
 
-    def s_mass(self, T: float, p: float, n: np.ndarray) -> float:
-        self.set_TP(T, p, n)
-        return float(self.phase.entropy_mass)
+    def h_mass(self, T: float, p: float, n: np.ndarray, real: bool = False) -> float:
+        """Absolute specific enthalpy [J/kg] of the mixture with mole amounts ``n``.
 
-    def T_from_h(self, h: float, p: float, n: np.ndarray) -> float:
-        """Temperature [K] at absolute enthalpy ``h`` [J/kg] (Cantera's HP solver)."""
+        ``real=True`` adds the real-gas departure of air (Lemmon et al. 2000 via CoolProp) per
+        mole of mixture.
+        """
+        self.set_TP(T, p, n)
+        h = float(self.phase.enthalpy_mass)
+        if real:
+            h += air_departure(T, p)[0] / self.mean_molar_mass(n)
+        return h
+
+    def s_mass(self, T: float, p: float, n: np.ndarray, real: bool = False) -> float:
+        """Specific entropy [J/(kg K)]; ``real`` as for :meth:`h_mass`."""
+        self.set_TP(T, p, n)
+        s = float(self.phase.entropy_mass)
+        if real:
+            s += air_departure(T, p)[1] / self.mean_molar_mass(n)
+        return s
+
+    def T_from_h(self, h: float, p: float, n: np.ndarray, real: bool = False) -> float:
+        """Temperature [K] at absolute enthalpy ``h`` [J/kg] (Cantera's HP solver; with the
+        real-gas departure a bracketing root solve around that first guess)."""
         self.phase.HPX = h, p, n / n.sum()
-        return float(self.phase.T)
+        T0 = float(self.phase.T)
+        if not real:
+            return T0
+        return float(
+            brentq(lambda T: self.h_mass(T, p, n, True) - h, T0 - 5.0, T0 + 5.0, xtol=1e-11)
+        )
 
-    def isentropic_h(self, T: float, p: float, p_end: float, n: np.ndarray) -> tuple[float, float]:
+    def isentropic_h(
+        self, T: float, p: float, p_end: float, n: np.ndarray, real: bool = False
+    ) -> tuple[float, float]:
         """(T_end_s [K], h_end_s [J/kg]) at ``p_end`` with the entropy of (T, p)."""
         self.set_TP(T, p, n)
         self.phase.SP = self.phase.entropy_mass, p_end
-        return float(self.phase.T), float(self.phase.enthalpy_mass)
+        Ts = float(self.phase.T)
+        if real:
+            s = self.s_mass(T, p, n, True)
+            Ts = float(
+                brentq(lambda t: self.s_mass(t, p_end, n, True) - s, Ts - 5.0, Ts + 5.0, xtol=1e-11)
+            )
+        return Ts, self.h_mass(Ts, p_end, n, real)
 
     def molar_h(self, T: float) -> np.ndarray:
         """Species molar enthalpies [J/mol], absolute (formation-inclusive)."""
@@ -229,6 +264,25 @@ class _Gas:
             if el.get(inert):
                 prod[inert] = el[inert]
         return self.vector(prod)
+
+
+_AIR_EOS: list[Any] = []
+
+
+def air_departure(T: float, p: float) -> tuple[float, float]:
+    """Real-gas departure of air at (T [K], p [Pa]): (h - h_ig(T) [J/mol],
+    s - s_ig(T, p) [J/(mol K)]) from the Lemmon et al. (2000) equation of state in CoolProp.
+
+    ``h_ig`` depends on T only, so the enthalpy departure is CoolProp's residual enthalpy;
+    CoolProp's residual entropy is taken at equal density, so ``R ln Z`` converts it to
+    equal pressure.
+    """
+    if not _AIR_EOS:
+        _AIR_EOS.append(CoolProp.AbstractState("HEOS", "Air"))
+    eos = _AIR_EOS[0]
+    eos.update(CoolProp.PT_INPUTS, p, T)
+    R = eos.gas_constant()
+    return eos.hmolar_residual(), eos.smolar_residual() + R * math.log(eos.compressibility_factor())
 
 
 @cache
@@ -332,7 +386,9 @@ class OperatingPoint:
         return replace(self, **changes)
 
 
-def forward(op: OperatingPoint, data: Data = "nasa", lhv: float | None = None) -> dict[str, Any]:
+def forward(
+    op: OperatingPoint, data: Data = "nasa", lhv: float | None = None, real_gas: bool = True
+) -> dict[str, Any]:
     """Sensor values of a gas turbine at a known operating point (Cantera, ideal gas).
 
     Parameters
@@ -345,6 +401,9 @@ def forward(op: OperatingPoint, data: Data = "nasa", lhv: float | None = None) -
         Heating value [J/kg] used only to size the combustion-inefficiency and casing-loss
         terms; default Cantera's own (:func:`cantera_lhv`).  The main heat release always
         comes from Cantera's absolute enthalpies.
+    real_gas : bool
+        Add the real-gas departure of air (:func:`air_departure`) at the stations named in
+        :data:`REAL_GAS_STATIONS` (default True); False is a pure ideal-gas mixture.
 
     Returns
     -------
@@ -365,6 +424,8 @@ def forward(op: OperatingPoint, data: Data = "nasa", lhv: float | None = None) -
     Q_turbine_loss)``.
     """
     gas = _gas(data)
+    rc = real_gas and "compressor" in REAL_GAS_STATIONS
+    rt = real_gas and "turbine" in REAL_GAS_STATIONS
     T0, p0 = op.ambient_temperature, op.ambient_pressure
     T1 = T0 + op.inlet_temperature_rise
     p1 = p0 - op.inlet_pressure_loss
@@ -377,11 +438,11 @@ def forward(op: OperatingPoint, data: Data = "nasa", lhv: float | None = None) -
     LHV = cantera_lhv(op.fuel, data) if lhv is None else lhv
 
     # compressor
-    h1 = gas.h_mass(T1, p1, air_per_kg)
+    h1 = gas.h_mass(T1, p1, air_per_kg, rc)
     p2 = op.pressure_ratio * p1
-    T2s, h2s = gas.isentropic_h(T1, p1, p2, air_per_kg)
+    T2s, h2s = gas.isentropic_h(T1, p1, p2, air_per_kg, rc)
     h2 = h1 + (h2s - h1) / op.compressor_efficiency
-    T2 = gas.T_from_h(h2, p2, air_per_kg)
+    T2 = gas.T_from_h(h2, p2, air_per_kg, rc)
 
     # combustor: fuel-air ratio to reach TIT (absolute enthalpies, complete combustion)
     p3 = p2 * (1.0 - op.combustor_pressure_loss)
@@ -396,7 +457,7 @@ def forward(op: OperatingPoint, data: Data = "nasa", lhv: float | None = None) -
     def residual(f: float) -> float:
         n = products(f)
         h_in = h2 + f * (hf - (1.0 - op.combustion_efficiency) * LHV - c_comb * LHV)
-        return gas.h_mass(TIT, p3, n) * gas.mass(n) - h_in
+        return gas.h_mass(TIT, p3, n, rt) * gas.mass(n) - h_in
 
     far_max = 0.98 * _stoichiometric_far(gas, air_per_kg, fuel_per_kg)
     far = brentq(residual, 1e-6, far_max, xtol=1e-15, rtol=1e-15, maxiter=200)
@@ -408,13 +469,13 @@ def forward(op: OperatingPoint, data: Data = "nasa", lhv: float | None = None) -
 
     # turbine
     p4 = p0 + op.exhaust_back_pressure
-    h3 = gas.h_mass(TIT, p3, prod)
-    T4s, h4s = gas.isentropic_h(TIT, p3, p4, prod)
+    h3 = gas.h_mass(TIT, p3, prod, rt)
+    T4s, h4s = gas.isentropic_h(TIT, p3, p4, prod, rt)
     h4_expansion = h3 - op.turbine_efficiency * (h3 - h4s)
     Q_loss = c * m_f * LHV
     Q_turb = Q_loss if CASING_LOSS_AT == "turbine" else 0.0
     h4 = h4_expansion - Q_turb / m_g
-    T4 = gas.T_from_h(h4, p4, prod)
+    T4 = gas.T_from_h(h4, p4, prod, rt)
 
     P_turbine = m_g * (h3 - h4_expansion)
     P_compressor = m_a * (h2 - h1)
@@ -475,6 +536,7 @@ def reconstruct_one(
     parameters: Mapping[str, float],
     data: Data = "nasa",
     saturation: Literal["ice", "water"] = "water",
+    real_gas: bool = True,
     max_iter: int = 50,
     tol: float = 1e-10,
 ) -> dict[str, float]:
@@ -495,6 +557,8 @@ def reconstruct_one(
     parameters : mapping
         ``generator_efficiency``, ``combustor_pressure_loss``, ``combustion_efficiency``,
         ``casing_heat_loss_fraction`` [1].
+    real_gas : bool
+        Real-gas departure of air at :data:`REAL_GAS_STATIONS` (as :func:`forward`).
 
     Returns
     -------
@@ -516,6 +580,8 @@ def reconstruct_one(
     efficiency ``(h3 - h4) / (h3 - h4s)`` at ``p3 = p2 (1 - dp)``.
     """
     gas = _gas(data)
+    rc = real_gas and "compressor" in REAL_GAS_STATIONS
+    rt = real_gas and "turbine" in REAL_GAS_STATIONS
     m = measurements
     T0, p0, RH = m["ambient_temperature"], m["ambient_pressure"], m["ambient_relative_humidity"]
     T1, p1 = m["compressor_inlet_temperature"], m["compressor_inlet_pressure"]
@@ -535,14 +601,14 @@ def reconstruct_one(
     fuel_kg = _fuel_vector(gas, fuel)
     fuel_kg = fuel_kg / gas.mass(fuel_kg)
 
-    def hs(T: float, p: float, n: np.ndarray) -> float:
-        """Sensible enthalpy [J/kg] relative to T_REF."""
-        return gas.h_mass(T, p, n) - gas.h_mass(T_REF, p, n)
+    def hs(T: float, p: float, n: np.ndarray, real: bool = False) -> float:
+        """Sensible enthalpy [J/kg] relative to the ideal gas at T_REF (+ departure)."""
+        return gas.h_mass(T, p, n, real) - gas.h_mass(T_REF, p, n)
 
     # compressor
-    h1 = hs(T1, p1, air)
-    h2 = hs(T2, p2, air)
-    _, h2s_abs = gas.isentropic_h(T1, p1, p2, air)
+    h1 = hs(T1, p1, air, rc)
+    h2 = hs(T2, p2, air, rc)
+    _, h2s_abs = gas.isentropic_h(T1, p1, p2, air, rc)
     h2s = h2s_abs - gas.h_mass(T_REF, p2, air)
     eta_c = (h2s - h1) / (h2 - h1)
 
@@ -556,7 +622,7 @@ def reconstruct_one(
     it = 0
     for it in range(1, max_iter + 1):  # noqa: B007
         prod = gas.products(air, far * fuel_kg) / (1.0 + far)  # mol per kg gas
-        h4 = hs(T4, p4, prod)
+        h4 = hs(T4, p4, prod, rt)
         m_a_new = (heat_in - P_shaft - Q_loss - m_f * h4) / (h4 - h1)
         far = m_f / m_a_new
         if abs(m_a_new - m_a) <= tol * abs(m_a_new):
@@ -570,11 +636,11 @@ def reconstruct_one(
     p3 = p2 * (1.0 - dp)
     Q_comb = Q_loss if CASING_LOSS_AT == "combustor" else 0.0
     h3 = (m_a * h2 + heat_in - Q_comb) / m_g
-    T3 = gas.T_from_h(h3 + gas.h_mass(T_REF, p3, prod), p3, prod)
+    T3 = gas.T_from_h(h3 + gas.h_mass(T_REF, p3, prod), p3, prod, rt)
 
     # turbine
-    h4 = hs(T4, p4, prod)
-    _, h4s_abs = gas.isentropic_h(T3, p3, p4, prod)
+    h4 = hs(T4, p4, prod, rt)
+    _, h4s_abs = gas.isentropic_h(T3, p3, p4, prod, rt)
     h4s = h4s_abs - gas.h_mass(T_REF, p4, prod)
     eta_t = (h3 - h4) / (h3 - h4s)
 
