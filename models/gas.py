@@ -1,0 +1,906 @@
+"""Ideal-gas mixture properties, humid air and the real-gas departure of air-like gases.
+
+All quantities are SI: T [K], p [Pa] (absolute), h [J/kg], cp and s [J/(kg K)], molar mass
+[kg/mol], compositions as mole (``x``) or mass (``y``) fractions over
+:data:`models.species.SPECIES` on the last axis.  Every function is vectorised and broadcasts
+over a batch shape ``(...)``.
+
+Exceptions and status
+---------------------
+Misuse by the caller (a composition with negative entries or not summing to 1, a wrong last-axis
+length) raises :class:`models.status.ModelInputError`.  Bad plant data never raises: the affected
+elements are NaN and the solvers return a ``uint32`` status array of :class:`models.status.Reason`
+bits (``TEMPERATURE_OUT_OF_RANGE``, ``NOT_CONVERGED``, ``INPUT_MISSING``, ``INPUT_NONPHYSICAL``,
+``PRESSURE_OUT_OF_RANGE``, ``HUMIDITY_SATURATED``).  The plain property functions (``h``, ``cp``,
+``s0``, ``s``) return NaN outside ``T_MIN..T_MAX`` without a status array.
+
+Speed
+-----
+NASA polynomial coefficients are linear in the mass fractions, so a :class:`Mixture` stores its
+own mass-specific coefficient tables (computed once, ``y @ coefficients``) and every property
+evaluation is one Horner polynomial, not a loop over species.
+
+References
+----------
+.. [1] B. J. McBride, S. Gordon, M. A. Reno, "Coefficients for Calculating Thermodynamic and
+   Transport Properties of Individual Species", NASA TM-4513, 1993.
+.. [2] W. Wagner, A. Pruss, "The IAPWS formulation 1995 for the thermodynamic properties of
+   ordinary water substance for general and scientific use", J. Phys. Chem. Ref. Data 31
+   (2002) 387-535 (auxiliary vapour-pressure equation, eq. 2.5).
+.. [3] W. Wagner, T. Riethmann, R. Feistel, A. H. Harvey, "New equations for the sublimation
+   pressure and melting pressure of H2O ice Ih", J. Phys. Chem. Ref. Data 40 (2011) 043103
+   (IAPWS R14-08(2011)).
+.. [4] A. Picard, R. S. Davis, M. Glaeser, K. Fujii, "Revised formula for the density of moist
+   air (CIPM-2007)", Metrologia 45 (2008) 149-155.
+.. [5] E. W. Lemmon, R. T. Jacobsen, S. G. Penoncello, D. G. Friend, "Thermodynamic properties
+   of air and mixtures of nitrogen, argon, and oxygen from 60 to 2000 K at pressures to
+   2000 MPa", J. Phys. Chem. Ref. Data 29 (2000) 331-385.
+.. [6] ISO 2533:1975, Standard Atmosphere, Table 1 (composition of dry air).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from models import thermo_data as _td
+from models.species import INDEX, N_SPECIES, SPECIES
+from models.status import ModelInputError, Reason
+
+__all__ = [
+    "DRY_AIR",
+    "MAX_ITER",
+    "MOLAR_MASS",
+    "P_MAX_REAL",
+    "P_REF",
+    "RH_TOLERANCE",
+    "R_UNIVERSAL",
+    "T_MAX",
+    "T_MIN",
+    "T_REF",
+    "Mixture",
+    "compressibility",
+    "enhancement_factor",
+    "humid_air",
+    "residual",
+    "saturation_pressure",
+]
+
+FloatArray = NDArray[np.float64]
+StatusArray = NDArray[np.uint32]
+
+#: Lowest temperature the property functions accept [K].
+T_MIN: float = 200.0
+#: Highest temperature the property functions accept [K].
+T_MAX: float = 3000.0
+#: Standard-state pressure of the NASA data [Pa].
+P_REF: float = 1.0e5
+#: Reference temperature of the sensible enthalpy, h(T_REF) = 0 [K].
+T_REF: float = 298.15
+#: Highest pressure of the real-gas departure fit [Pa].
+P_MAX_REAL: float = 6.0e6
+#: Molar gas constant [J/(mol K)].
+R_UNIVERSAL: float = _td.R_UNIVERSAL
+#: Molar masses over SPECIES [kg/mol] (ISO 6976:2016 atomic weights).
+MOLAR_MASS: FloatArray = _td.MOLAR_MASS.copy()
+MOLAR_MASS.flags.writeable = False
+#: Newton iteration cap of the temperature solvers.
+MAX_ITER: int = 8
+#: Convergence criterion of the temperature solvers [K].
+_T_TOL: float = 1e-6
+#: Relative humidity above 1 accepted (and capped to 1) before it counts as nonphysical [-].
+RH_TOLERANCE: float = 1e-3
+#: Tolerance on the sum of a composition [-].
+_SUM_TOL: float = 1e-5
+_T_MID: float = 1000.0
+
+
+def _dry_air() -> FloatArray:
+    x = np.zeros(N_SPECIES)
+    # N2, O2, Ar: ISO 2533:1975 Table 1 (78.084, 20.9476, 0.934 % by volume); CO2 raised from
+    # that table's 0.0314 % to a present-day 400 ppm (common practice); normalised to sum 1.
+    x[INDEX["N2"]] = 0.78084
+    x[INDEX["O2"]] = 0.209476
+    x[INDEX["Ar"]] = 0.00934
+    x[INDEX["CO2"]] = 0.0004
+    x /= x.sum()
+    x.flags.writeable = False
+    return x
+
+
+#: Mole fractions of dry air over SPECIES (ISO 2533 with 400 ppm CO2, normalised).
+DRY_AIR: FloatArray = _dry_air()
+
+
+# --------------------------------------------------------------------------------------------
+# Species tables (module constants, read-only): mass-specific coefficients per range.
+# --------------------------------------------------------------------------------------------
+def _h_over_r(a: FloatArray, T: float) -> FloatArray:
+    """h/R [K] of NASA-7 rows a (n, 7) at T."""
+    out: FloatArray = a[:, 5] + T * (
+        a[:, 0] + T * (a[:, 1] / 2 + T * (a[:, 2] / 3 + T * (a[:, 3] / 4 + T * a[:, 4] / 5)))
+    )
+    return out
+
+
+def _s_over_r(a: FloatArray, T: float) -> FloatArray:
+    """s°/R [-] of NASA-7 rows a (n, 7) at T."""
+    out: FloatArray = (
+        a[:, 0] * np.log(T)
+        + T * (a[:, 1] + T * (a[:, 2] / 2 + T * (a[:, 3] / 3 + T * a[:, 4] / 4)))
+        + a[:, 6]
+    )
+    return out
+
+
+def _species_tables() -> tuple[FloatArray, FloatArray, FloatArray]:
+    if not np.all(_td.T_MID == _T_MID):
+        raise RuntimeError("thermo_data: every species must break at 1000 K")  # pragma: no cover
+    r_i = R_UNIVERSAL / _td.MOLAR_MASS  # J/(kg K)
+    lo = _td.COEFF_LOW.copy()
+    hi = _td.COEFF_HIGH.copy()
+    t = T_REF
+    h298 = t * (
+        lo[:, 0] + t * (lo[:, 1] / 2 + t * (lo[:, 2] / 3 + t * (lo[:, 3] / 4 + t * lo[:, 4] / 5)))
+    )
+    h298 += lo[:, 5]
+    lo[:, 5] -= h298  # sensible enthalpy: h(298.15 K) = 0 for every species
+    hi[:, 5] -= h298
+    # Make h and s exactly continuous at 1000 K (the published fits jump by a few parts per
+    # million there; a jump would leave the Newton solvers with no root in the gap).
+    t = _T_MID
+    hi[:, 5] += _h_over_r(lo, t) - _h_over_r(hi, t)
+    hi[:, 6] += _s_over_r(lo, t) - _s_over_r(hi, t)
+    a = np.stack([lo, hi]) * r_i[None, :, None]  # (2, n, 7)
+    # Polynomial coefficients in ascending powers of T (ln T term of s kept apart):
+    h_tab = np.stack(
+        [a[..., 5], a[..., 0], a[..., 1] / 2, a[..., 2] / 3, a[..., 3] / 4, a[..., 4] / 5], axis=1
+    )  # (2, 6, n): h = Σ c_k T^k
+    cp_tab = np.stack([a[..., k] for k in range(5)], axis=1)  # (2, 5, n): cp = Σ c_k T^k
+    s_tab = np.stack(
+        [a[..., 0], a[..., 1], a[..., 2] / 2, a[..., 3] / 3, a[..., 4] / 4, a[..., 6]], axis=1
+    )  # (2, 6, n): φ = c0 ln T + c1 T + c2 T² + c3 T³ + c4 T⁴ + c5
+    for tab in (h_tab, cp_tab, s_tab):
+        tab.flags.writeable = False
+    return h_tab, cp_tab, s_tab
+
+
+_H_TAB, _CP_TAB, _S_TAB = _species_tables()
+
+
+def _virial_tables() -> FloatArray:
+    i = np.arange(_td.AIR_VIRIAL_B.size, dtype=float)
+    b, c = _td.AIR_VIRIAL_B, _td.AIR_VIRIAL_C
+    # rows: Z-1, h_res/(R T), s_res/R, cp_res/R ; columns (pi-coefficients, pi^2-coefficients)
+    tab = np.array(
+        [
+            [b, c],
+            [i * b, i * c / 2],
+            [-(1 - i) * b, -(1 - i) * c / 2],
+            [i * (1 - i) * b, i * (1 - i) * c / 2],
+        ]
+    )
+    tab.flags.writeable = False
+    return tab
+
+
+_VIR = _virial_tables()  # (4, 2, n_terms)
+
+
+# --------------------------------------------------------------------------------------------
+# Small helpers
+# --------------------------------------------------------------------------------------------
+def _f(a: ArrayLike) -> FloatArray:
+    return np.asarray(a, dtype=np.float64)
+
+
+def _horner(c: Sequence[Any], T: FloatArray) -> FloatArray:
+    """c[-1]*T^(n-1) + ... + c[0] with in-place updates (c[k] broadcast against T)."""
+    out: FloatArray = c[-1] * T
+    for k in range(len(c) - 2, 0, -1):
+        out += c[k]
+        out *= T
+    out += c[0]
+    return out
+
+
+def _t_out_of_range(T: FloatArray) -> NDArray[np.bool_]:
+    with np.errstate(invalid="ignore"):
+        return ~((T >= T_MIN) & (T <= T_MAX))
+
+
+def _check_composition(z: FloatArray, name: str) -> FloatArray:
+    """Validate a composition array (..., N_SPECIES); NaN rows pass through; return normalised."""
+    if z.ndim == 0 or z.shape[-1] != N_SPECIES:
+        raise ModelInputError(
+            name, z.shape, f"last axis of length {N_SPECIES} ({', '.join(SPECIES)})"
+        )
+    finite_rows = np.all(np.isfinite(z), axis=-1)
+    zf = z[finite_rows]
+    if zf.size:
+        if np.any(zf < -1e-12):
+            bad = zf[np.any(zf < -1e-12, axis=-1)][0]
+            raise ModelInputError(name, bad.tolist(), "fractions >= 0")
+        tot = zf.sum(axis=-1)
+        off = np.abs(tot - 1.0) > _SUM_TOL
+        if np.any(off):
+            raise ModelInputError(f"sum({name})", float(tot[off][0]), f"1 +/- {_SUM_TOL:g}")
+    with np.errstate(invalid="ignore"):
+        out: FloatArray = np.clip(z, 0.0, None) / np.sum(
+            np.clip(z, 0.0, None), axis=-1, keepdims=True
+        )
+    return out
+
+
+def _range(T: FloatArray) -> int | NDArray[np.bool_]:
+    """0 if every T is in the low range, 1 if every T is in the high range, else the mask."""
+    with np.errstate(invalid="ignore"):
+        low = T < _T_MID
+    if low.all():
+        return 0
+    if not low.any():
+        return 1
+    return low
+
+
+def _pick(tab: FloatArray, T: FloatArray, batch_ndim: int, r: int | NDArray[np.bool_]) -> Any:
+    """Coefficient rows of the right range for each element: tab (2, K, *batch)."""
+    extra = T.ndim - batch_ndim
+    if isinstance(r, int):
+        c = tab[r]
+        if extra > 0:  # T has more leading dims than the mixture: unit axes after K
+            c = c.reshape((c.shape[0],) + (1,) * extra + c.shape[1:])
+        return c
+    lo, hi = tab[0], tab[1]
+    if extra > 0:
+        shp = (lo.shape[0],) + (1,) * extra + lo.shape[1:]
+        lo, hi = lo.reshape(shp), hi.reshape(shp)
+    return np.where(r, lo, hi)
+
+
+def _virial(T: FloatArray, p: FloatArray, rows: Sequence[int]) -> list[FloatArray]:
+    """Dimensionless departure terms (rows of _VIR) at T, p (unchecked)."""
+    tau = _td.AIR_VIRIAL_T_SCALE / T
+    pi = p / _td.AIR_VIRIAL_P_SCALE
+    out = []
+    for r in rows:
+        v1 = _horner(_VIR[r, 0], tau)
+        v2 = _horner(_VIR[r, 1], tau)
+        v2 *= pi
+        v2 += v1
+        v2 *= pi
+        out.append(v2)
+    return out
+
+
+def _status_like(shape: tuple[int, ...]) -> StatusArray:
+    return np.zeros(shape, dtype=np.uint32)
+
+
+# --------------------------------------------------------------------------------------------
+# Mixture
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class Mixture:
+    """An ideal-gas mixture of batch shape ``(...)``.
+
+    Build it with :meth:`from_mole_fractions` or :meth:`from_mass_fractions`; it stores the
+    mass-specific NASA coefficients of the mixture so each property is one polynomial.
+
+    Attributes
+    ----------
+    M : ndarray, shape (...)
+        Molar mass [kg/mol].
+    R : ndarray, shape (...)
+        Specific gas constant R_u / M [J/(kg K)].
+    y : ndarray, shape (..., n_species)
+        Mass fractions [-].
+    """
+
+    M: FloatArray
+    R: FloatArray
+    y: FloatArray
+    _h_tab: FloatArray = field(repr=False)  # (2, 6, ...) J/kg polynomial of T, sensible
+    _cp_tab: FloatArray = field(repr=False)  # (2, 5, ...)
+    _s_tab: FloatArray = field(repr=False)  # (2, 6, ...)
+    _s_mix: FloatArray = field(repr=False)  # -R sum x ln x [J/(kg K)]
+    _cp_ref: FloatArray = field(repr=False)  # cp(298.15 K)
+    _phi_ref: FloatArray = field(repr=False)  # s0(298.15 K)
+
+    # ---- construction ------------------------------------------------------------------
+    @classmethod
+    def from_mass_fractions(cls, y: ArrayLike) -> Mixture:
+        """Mixture from mass fractions ``y`` (..., n_species) [-].
+
+        Raises
+        ------
+        ModelInputError
+            Wrong last-axis length, negative fractions or a sum off 1 by more than 1e-5.
+            Rows containing NaN are accepted and give NaN properties.
+        """
+        yy = _check_composition(_f(y), "y")
+        return cls._build(yy)
+
+    @classmethod
+    def from_mole_fractions(cls, x: ArrayLike) -> Mixture:
+        """Mixture from mole fractions ``x`` (..., n_species) [-] (same checks as above)."""
+        xx = _check_composition(_f(x), "x")
+        m = xx * MOLAR_MASS
+        return cls._build(m / m.sum(axis=-1, keepdims=True))
+
+    @classmethod
+    def _build(cls, y: FloatArray) -> Mixture:
+        inv_m = _f(y @ (1.0 / MOLAR_MASS))  # mol/kg
+        M = _f(1.0 / inv_m)
+        R = _f(R_UNIVERSAL * inv_m)
+        h_tab = np.tensordot(_H_TAB, y, axes=([2], [-1]))
+        cp_tab = np.tensordot(_CP_TAB, y, axes=([2], [-1]))
+        s_tab = np.tensordot(_S_TAB, y, axes=([2], [-1]))
+        x = y * (M[..., None] / MOLAR_MASS)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            xlnx = np.where(x > 0, x * np.log(np.where(x > 0, x, 1.0)), 0.0)
+        s_mix = _f(-R * xlnx.sum(axis=-1))
+        t = _f(T_REF)
+        cp_ref = _horner(list(cp_tab[0]), t)
+        phi_ref = _horner([0.0, *s_tab[0, 1:5]], t) + s_tab[0, 0] * np.log(t) + s_tab[0, 5]
+        for a in (M, R, y, h_tab, cp_tab, s_tab, s_mix):
+            a.flags.writeable = False
+        return cls(M, R, y, h_tab, cp_tab, s_tab, s_mix, _f(cp_ref), _f(phi_ref))
+
+    # ---- basic attributes ----------------------------------------------------------------
+    @property
+    def shape(self) -> tuple[int, ...]:
+        """Batch shape of the mixture."""
+        return tuple(self.M.shape)
+
+    @property
+    def x(self) -> FloatArray:
+        """Mole fractions (..., n_species) [-]."""
+        out: FloatArray = self.y * (self.M[..., None] / MOLAR_MASS)
+        return out
+
+    @property
+    def s_mixing(self) -> FloatArray:
+        """Ideal mixing entropy -R Σ x_i ln x_i [J/(kg K)]."""
+        return self._s_mix
+
+    # ---- unchecked kernels ----------------------------------------------------------------
+    def _h_raw(self, T: FloatArray) -> FloatArray:
+        return _horner(_pick(self._h_tab, T, self.M.ndim, _range(T)), T)
+
+    def _cp_raw(self, T: FloatArray) -> FloatArray:
+        return _horner(_pick(self._cp_tab, T, self.M.ndim, _range(T)), T)
+
+    def _phi_c(self, c: Any, T: FloatArray) -> FloatArray:
+        out = _horner([0.0, c[1], c[2], c[3], c[4]], T)
+        out += c[0] * np.log(T)
+        out += c[5]
+        return out
+
+    def _phi_raw(self, T: FloatArray) -> FloatArray:
+        return self._phi_c(_pick(self._s_tab, T, self.M.ndim, _range(T)), T)
+
+    def _h_cp_raw(self, T: FloatArray) -> tuple[FloatArray, FloatArray]:
+        r, nd = _range(T), self.M.ndim
+        return (
+            _horner(_pick(self._h_tab, T, nd, r), T),
+            _horner(_pick(self._cp_tab, T, nd, r), T),
+        )
+
+    def _phi_cp_raw(self, T: FloatArray) -> tuple[FloatArray, FloatArray]:
+        r, nd = _range(T), self.M.ndim
+        return (
+            self._phi_c(_pick(self._s_tab, T, nd, r), T),
+            _horner(_pick(self._cp_tab, T, nd, r), T),
+        )
+
+    @staticmethod
+    def _nan_out(out: FloatArray, T: FloatArray) -> FloatArray:
+        bad = _t_out_of_range(T)
+        if bad.any():
+            return np.where(bad, np.nan, out)
+        return out
+
+    # ---- properties ------------------------------------------------------------------------
+    def h(self, T: ArrayLike) -> FloatArray:
+        """Sensible enthalpy h(T) - h(298.15 K) [J/kg].
+
+        Parameters
+        ----------
+        T : array_like
+            Temperature [K]; NaN is returned outside ``T_MIN..T_MAX``.
+
+        Notes
+        -----
+        h = Σ y_i (R_u/M_i) [a1 T + a2 T²/2 + a3 T³/3 + a4 T⁴/4 + a5 T⁵/5 + a6] - h(298.15 K),
+        NASA 7-coefficient form [1]_, evaluated as one polynomial with mixture coefficients.
+        The heat of combustion is not included (it enters via the fuel's LHV).
+        """
+        T = _f(T)
+        return self._nan_out(self._h_raw(T), T)
+
+    def cp(self, T: ArrayLike) -> FloatArray:
+        """Isobaric specific heat capacity of the ideal gas [J/(kg K)] at T [K]."""
+        T = _f(T)
+        return self._nan_out(self._cp_raw(T), T)
+
+    def cv(self, T: ArrayLike) -> FloatArray:
+        """Isochoric specific heat capacity cp - R of the ideal gas [J/(kg K)] at T [K]."""
+        out: FloatArray = self.cp(T) - self.R
+        return out
+
+    def gamma(self, T: ArrayLike) -> FloatArray:
+        """Ratio of specific heats cp/(cp - R) of the ideal gas [-] at T [K]."""
+        cp = self.cp(T)
+        out: FloatArray = cp / (cp - self.R)
+        return out
+
+    def s0(self, T: ArrayLike) -> FloatArray:
+        """Standard-state entropy function φ(T) [J/(kg K)].
+
+        Notes
+        -----
+        φ(T) = Σ y_i s°_i(T) / M_i = ∫_{298.15}^{T} cp/T dT + s°(298.15 K) at P_REF = 1 bar,
+        with no pressure and no mixing term.
+        """
+        T = _f(T)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            out = self._phi_raw(T)
+        return self._nan_out(out, T)
+
+    def s(self, T: ArrayLike, p: ArrayLike) -> FloatArray:
+        """Ideal-gas mixture entropy [J/(kg K)] at T [K] and p [Pa].
+
+        Notes
+        -----
+        s = φ(T) - R ln(p / P_REF) - R Σ x_i ln x_i  (per kg of mixture).  NaN for p <= 0.
+        """
+        p = _f(p)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            lnp = np.log(np.where(p > 0, p, np.nan) / P_REF)
+        out: FloatArray = self.s0(T) - self.R * lnp + self._s_mix
+        return out
+
+    def h_real(self, T: ArrayLike, p: ArrayLike) -> FloatArray:
+        """Enthalpy with the real-gas departure, h(T) + (h - h_ig)(T, p) [J/kg]."""
+        dh, _ = residual(T, p, self)
+        out: FloatArray = self.h(T) + dh
+        return out
+
+    def s_real(self, T: ArrayLike, p: ArrayLike) -> FloatArray:
+        """Entropy with the real-gas departure, s(T, p) + (s - s_ig)(T, p) [J/(kg K)]."""
+        _, ds = residual(T, p, self)
+        out: FloatArray = self.s(T, p) + ds
+        return out
+
+    # ---- solvers ---------------------------------------------------------------------------
+    def _finish(
+        self, T: FloatArray, done: NDArray[np.bool_], status: StatusArray
+    ) -> tuple[FloatArray, StatusArray]:
+        nc = ~done & (status == 0)
+        status[nc] |= np.uint32(Reason.NOT_CONVERGED)
+        # a root on the boundary may land a rounding error outside: accept within 1e-6 K
+        T = np.clip(T, T_MIN, T_MAX, out=T, where=np.abs(T - np.clip(T, T_MIN, T_MAX)) < _T_TOL)
+        oor = _t_out_of_range(T) & (status == 0)
+        status[oor] |= np.uint32(Reason.TEMPERATURE_OUT_OF_RANGE)
+        bad = status != 0
+        if bad.any():
+            T = np.where(bad, np.nan, T)
+        return T, status
+
+    def T_from_h(
+        self, h: ArrayLike, T_guess: ArrayLike | None = None, p: ArrayLike | None = None
+    ) -> tuple[FloatArray, StatusArray]:
+        """Temperature [K] at sensible enthalpy h [J/kg] (Newton, at most MAX_ITER steps).
+
+        Parameters
+        ----------
+        h : array_like
+            Sensible enthalpy [J/kg] as returned by :meth:`h` (or :meth:`h_real` when ``p``
+            is given).
+        T_guess : array_like, optional
+            Starting temperature [K]; default from cp(298.15 K).
+        p : array_like, optional
+            Pressure [Pa]; when given, ``h`` includes the real-gas departure.
+
+        Returns
+        -------
+        T : ndarray
+            Temperature [K]; NaN where status is not zero.
+        status : ndarray of uint32
+            Reason bits: INPUT_MISSING (h NaN), INPUT_NONPHYSICAL (p <= 0),
+            PRESSURE_OUT_OF_RANGE (p > P_MAX_REAL), NOT_CONVERGED (|ΔT| >= 1e-6 K after
+            MAX_ITER steps), TEMPERATURE_OUT_OF_RANGE (outside T_MIN..T_MAX).
+        """
+        h = _f(h)
+        pa = None if p is None else _f(p)
+        shapes = [h.shape, self.shape] + ([] if pa is None else [pa.shape])
+        if T_guess is not None:
+            shapes.append(np.shape(T_guess))
+        shape = np.broadcast_shapes(*shapes)
+        status = _status_like(shape)
+        hw = np.broadcast_to(h, shape)
+        miss = ~np.isfinite(hw)
+        if miss.any():
+            status[miss] |= np.uint32(Reason.INPUT_MISSING)
+            hw = np.where(miss, 0.0, hw)
+        if pa is not None:
+            pa = self._check_p(pa, shape, status)
+        if T_guess is None:
+            T = np.broadcast_to(T_REF + hw / self._cp_ref, shape).copy()
+        else:
+            T = np.broadcast_to(_f(T_guess), shape).copy()
+            gbad = ~np.isfinite(T)
+            T[gbad] = 1000.0
+        np.clip(T, 100.0, 5000.0, out=T)
+        done = np.zeros(shape, dtype=bool)
+        for _ in range(MAX_ITER):
+            hv, cpv = self._h_cp_raw(T)
+            if pa is not None:
+                hr, cpr = _virial(T, pa, (1, 3))
+                hv = hv + self.R * T * hr
+                cpv = cpv + self.R * cpr
+            dT = hv - hw
+            dT /= cpv
+            T -= dT
+            np.clip(T, 100.0, 5000.0, out=T)
+            done = np.abs(dT) < _T_TOL
+            if done.all():
+                break
+        return self._finish(T, done, status)
+
+    def _check_p(self, p: FloatArray, shape: tuple[int, ...], status: StatusArray) -> FloatArray:
+        pb = np.broadcast_to(p, shape)
+        miss = np.isnan(pb)
+        with np.errstate(invalid="ignore"):
+            nonphys = ~miss & ~(pb > 0)
+            high = pb > P_MAX_REAL
+        bad = miss | nonphys | high
+        if bad.any():
+            status[miss] |= np.uint32(Reason.INPUT_MISSING)
+            status[nonphys] |= np.uint32(Reason.INPUT_NONPHYSICAL)
+            status[high] |= np.uint32(Reason.PRESSURE_OUT_OF_RANGE)
+            pb = np.where(bad, P_REF, pb)
+        return pb
+
+    def _solve_phi(
+        self,
+        phi_t: FloatArray,
+        T: FloatArray,
+        status: StatusArray,
+        p_real: FloatArray | None,
+    ) -> tuple[FloatArray, StatusArray]:
+        """Newton on φ(T) [+ s_res(T, p_real)] = phi_t, T modified in place."""
+        np.clip(T, 100.0, 5000.0, out=T)
+        done = np.zeros(T.shape, dtype=bool)
+        for _ in range(MAX_ITER):
+            phi, cpv = self._phi_cp_raw(T)
+            if p_real is not None:
+                sr, cpr = _virial(T, p_real, (2, 3))
+                phi = phi + self.R * sr
+                cpv = cpv + self.R * cpr
+            dT = phi - phi_t
+            dT *= T
+            dT /= cpv
+            T -= dT
+            np.clip(T, 100.0, 5000.0, out=T)
+            done = np.abs(dT) < _T_TOL
+            if done.all():
+                break
+        return self._finish(T, done, status)
+
+    def T_from_s(
+        self,
+        s: ArrayLike,
+        p: ArrayLike,
+        T_guess: ArrayLike | None = None,
+        real_gas: bool = False,
+    ) -> tuple[FloatArray, StatusArray]:
+        """Temperature [K] at entropy s [J/(kg K)] and pressure p [Pa] (Newton).
+
+        Parameters
+        ----------
+        s : array_like
+            Mixture entropy as from :meth:`s` (or :meth:`s_real` with ``real_gas``) [J/(kg K)].
+        p : array_like
+            Pressure [Pa].
+        T_guess : array_like, optional
+            Starting temperature [K].
+        real_gas : bool
+            Include the real-gas departure (:func:`residual`).
+
+        Returns
+        -------
+        T, status
+            As :meth:`T_from_h`.
+
+        Notes
+        -----
+        Solves φ(T) [+ s_res(T, p)] = s + R ln(p/P_REF) + R Σ x_i ln x_i.
+        """
+        s = _f(s)
+        p = _f(p)
+        shapes = [s.shape, p.shape, self.shape]
+        if T_guess is not None:
+            shapes.append(np.shape(T_guess))
+        shape = np.broadcast_shapes(*shapes)
+        status = _status_like(shape)
+        sw = np.broadcast_to(s, shape)
+        miss = ~np.isfinite(sw)
+        if miss.any():
+            status[miss] |= np.uint32(Reason.INPUT_MISSING)
+            sw = np.where(miss, 0.0, sw)
+        pb = self._check_p(p, shape, status) if real_gas else self._check_p_ideal(p, shape, status)
+        phi_t = sw + self.R * np.log(pb / P_REF) - self._s_mix
+        if T_guess is None:
+            T = np.broadcast_to(T_REF * np.exp((phi_t - self._phi_ref) / self._cp_ref), shape)
+            T = np.array(T, dtype=np.float64)
+        else:
+            T = np.array(np.broadcast_to(_f(T_guess), shape), dtype=np.float64)
+            T[~np.isfinite(T)] = 1000.0
+        return self._solve_phi(phi_t, T, status, pb if real_gas else None)
+
+    def _check_p_ideal(
+        self, p: FloatArray, shape: tuple[int, ...], status: StatusArray
+    ) -> FloatArray:
+        pb = np.broadcast_to(p, shape)
+        with np.errstate(invalid="ignore"):
+            ok = pb > 0
+        if not ok.all():
+            miss = np.isnan(pb)
+            status[miss] |= np.uint32(Reason.INPUT_MISSING)
+            status[~miss & ~ok] |= np.uint32(Reason.INPUT_NONPHYSICAL)
+            pb = np.where(ok, pb, P_REF)
+        return pb
+
+    def isentropic_T(
+        self, T1: ArrayLike, p1: ArrayLike, p2: ArrayLike, real_gas: bool = False
+    ) -> tuple[FloatArray, StatusArray]:
+        """Isentropic end temperature T2s [K] with s(T2s, p2) = s(T1, p1).
+
+        Parameters
+        ----------
+        T1 : array_like
+            Start temperature [K].
+        p1, p2 : array_like
+            Start and end pressure [Pa].
+        real_gas : bool
+            Include the real-gas departure at both ends.
+
+        Returns
+        -------
+        T2s : ndarray
+            [K]; NaN where status is not zero.
+        status : ndarray of uint32
+            As :meth:`T_from_h`; TEMPERATURE_OUT_OF_RANGE also for T1.
+
+        Notes
+        -----
+        Ideal gas: φ(T2s) = φ(T1) + R ln(p2/p1); real gas: φ(T2s) + s_res(T2s, p2) =
+        φ(T1) + s_res(T1, p1) + R ln(p2/p1).  The composition is frozen.
+        """
+        T1 = _f(T1)
+        p1 = _f(p1)
+        p2 = _f(p2)
+        shape = np.broadcast_shapes(T1.shape, p1.shape, p2.shape, self.shape)
+        status = _status_like(shape)
+        Tb = np.broadcast_to(T1, shape)
+        miss = np.isnan(Tb)
+        with np.errstate(invalid="ignore"):
+            nonphys = ~miss & ~(Tb > 0)
+        oor = _t_out_of_range(Tb) & ~miss & ~nonphys
+        if miss.any() or nonphys.any() or oor.any():
+            status[miss] |= np.uint32(Reason.INPUT_MISSING)
+            status[nonphys] |= np.uint32(Reason.INPUT_NONPHYSICAL)
+            status[oor] |= np.uint32(Reason.TEMPERATURE_OUT_OF_RANGE)
+            Tb = np.where(status != 0, T_REF, Tb)
+        chk = self._check_p if real_gas else self._check_p_ideal
+        p1b = chk(p1, shape, status)
+        p2b = chk(p2, shape, status)
+        phi1, cp1 = self._phi_cp_raw(Tb)
+        lnpr = np.log(p2b / p1b)
+        phi_t = phi1 + self.R * lnpr
+        if real_gas:
+            (sr1,) = _virial(Tb, p1b, (2,))
+            phi_t = phi_t + self.R * sr1
+        T = np.array(np.broadcast_to(Tb * np.exp(self.R * lnpr / cp1), shape), dtype=np.float64)
+        return self._solve_phi(phi_t, T, status, p2b if real_gas else None)
+
+    # ---- blending --------------------------------------------------------------------------
+    @staticmethod
+    def blend(parts: Sequence[tuple[Mixture, NDArray[np.float64] | float]]) -> Mixture:
+        """Mass-weighted mixture of ``parts`` = [(mixture, mass or mass flow), ...].
+
+        Weights [kg or kg/s] broadcast with the mixtures' batch shapes; the result is exact
+        (NASA coefficients are linear in the mass fractions).
+        """
+        if not parts:
+            raise ModelInputError("parts", parts, "at least one (Mixture, weight) pair")
+        num: Any = 0.0
+        den: Any = 0.0
+        for mix, w in parts:
+            wa = _f(w)
+            with np.errstate(invalid="ignore"):
+                if np.any(wa < 0):
+                    raise ModelInputError("weight", wa.tolist(), ">= 0 kg")
+            num = num + mix.y * wa[..., None]
+            den = den + wa
+        with np.errstate(invalid="ignore", divide="ignore"):
+            y = _f(num / _f(den)[..., None])
+        return Mixture.from_mass_fractions(y)
+
+
+# --------------------------------------------------------------------------------------------
+# Real-gas departure
+# --------------------------------------------------------------------------------------------
+def residual(T: ArrayLike, p: ArrayLike, mix: Mixture) -> tuple[FloatArray, FloatArray]:
+    """Real-gas departure (h - h_ig) [J/kg] and (s - s_ig) [J/(kg K)] at the same T, p.
+
+    Parameters
+    ----------
+    T : array_like
+        Temperature [K], ``T_MIN..T_MAX`` (NaN outside).
+    p : array_like
+        Pressure [Pa], 0 < p <= P_MAX_REAL (NaN outside).
+    mix : Mixture
+        The gas; its specific gas constant scales the molar departure.
+
+    Notes
+    -----
+    Pressure-explicit truncated virial form fitted to the Lemmon et al. (2000) air equation of
+    state [5]_ (fit in ``tools/gen_thermo_data.py``), with τ = 300 K / T, π = p / 1 MPa::
+
+        Z - 1 = π Σ b_i τ^i + π² Σ c_i τ^i
+        (h - h_ig)/(R T) = π Σ i b_i τ^i + (π²/2) Σ i c_i τ^i
+        (s - s_ig)/R = -π Σ (1-i) b_i τ^i - (π²/2) Σ (1-i) c_i τ^i
+
+    The molar departure of air is applied to any mixture (corresponding states on a molar
+    basis): right for dry and humid air at compressor conditions, an approximation for
+    combustion gas, where at turbine-inlet temperatures the departure is small anyway.
+    """
+    T = _f(T)
+    p = _f(p)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        bad = _t_out_of_range(T) | ~((p > 0) & (p <= P_MAX_REAL))
+        hr, sr = _virial(T, p, (1, 2))
+    dh: FloatArray = mix.R * T * hr
+    ds: FloatArray = mix.R * sr
+    if np.any(bad):
+        dh = np.where(bad, np.nan, dh)
+        ds = np.where(bad, np.nan, ds)
+    return dh, ds
+
+
+def compressibility(T: ArrayLike, p: ArrayLike) -> FloatArray:
+    """Compressibility factor Z = p/(ρ R T) of air [-] from the fit of :func:`residual`."""
+    T = _f(T)
+    p = _f(p)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        bad = _t_out_of_range(T) | ~((p > 0) & (p <= P_MAX_REAL))
+        (z1,) = _virial(T, p, (0,))
+    z: FloatArray = 1.0 + z1
+    return np.where(bad, np.nan, z) if np.any(bad) else z
+
+
+# --------------------------------------------------------------------------------------------
+# Water vapour and humid air
+# --------------------------------------------------------------------------------------------
+_TC, _PC = 647.096, 22.064e6  # K, Pa: IAPWS-95 critical point
+_WP_A = (-7.85951783, 1.84408259, -11.7866497, 22.6807411, -15.9618719, 1.80122502)
+_TT, _PT = 273.16, 611.657  # K, Pa: triple point (IAPWS 2011)
+_SUB_A = (-0.212144006e2, 0.273203819e2, -0.610598130e1)
+_SUB_B = (0.333333333e-2, 0.120666667e1, 0.170333333e1)
+
+
+def saturation_pressure(T: ArrayLike) -> FloatArray:
+    """Saturation pressure of water [Pa] over liquid (T >= 273.16 K) or ice (below).
+
+    Parameters
+    ----------
+    T : array_like
+        Temperature [K]; NaN outside 50 K .. 647.096 K.
+
+    Notes
+    -----
+    Liquid, Wagner & Pruss (2002) eq. 2.5 [2]_, ϑ = 1 - T/T_c::
+
+        ln(p/p_c) = (T_c/T)(a1 ϑ + a2 ϑ^1.5 + a3 ϑ³ + a4 ϑ^3.5 + a5 ϑ⁴ + a6 ϑ^7.5)
+
+    Ice Ih, IAPWS R14-08(2011) [3]_, θ = T/T_t::
+
+        ln(p/p_t) = θ⁻¹ Σ a_i θ^(b_i)
+    """
+    T = _f(T)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        v = 1.0 - T / _TC
+        a = _WP_A
+        liq = _PC * np.exp(
+            (_TC / T)
+            * (a[0] * v + a[1] * v**1.5 + a[2] * v**3 + a[3] * v**3.5 + a[4] * v**4 + a[5] * v**7.5)
+        )
+        th = T / _TT
+        ice = _PT * np.exp(sum(ai * th**bi for ai, bi in zip(_SUB_A, _SUB_B, strict=True)) / th)
+        out: FloatArray = np.where(T >= _TT, liq, ice)
+        out = np.where((T >= 50.0) & (T <= _TC), out, np.nan)
+    return out
+
+
+def enhancement_factor(T: ArrayLike, p: ArrayLike) -> FloatArray:
+    """Water-vapour enhancement factor f(T, p) of moist air [-].
+
+    Notes
+    -----
+    CIPM-2007 [4]_: f = 1.00062 + 3.14e-8 p + 5.6e-7 t², p [Pa], t [°C].  Stated for
+    600-1100 hPa and 15-27 °C; used here over the whole ambient range (the factor stays within
+    about 1.003-1.006, small beside RH sensor uncertainty).
+    """
+    t = _f(T) - 273.15
+    out: FloatArray = 1.00062 + 3.14e-8 * _f(p) + 5.6e-7 * t * t
+    return out
+
+
+def humid_air(
+    T: ArrayLike, p: ArrayLike, RH: ArrayLike, dry: ArrayLike = DRY_AIR
+) -> tuple[FloatArray, StatusArray]:
+    """Mole fractions (..., n_species) of humid air from T [K], p [Pa], RH [-].
+
+    Parameters
+    ----------
+    T : array_like
+        Air temperature [K].
+    p : array_like
+        Total (absolute) pressure [Pa].
+    RH : array_like
+        Relative humidity as a fraction 0..1 [-] (not percent).
+    dry : array_like
+        Dry-air mole fractions (..., n_species); default :data:`DRY_AIR`.
+
+    Returns
+    -------
+    x : ndarray (..., n_species)
+        Mole fractions; NaN rows where status has an error bit.
+    status : ndarray of uint32
+        HUMIDITY_SATURATED (warning) where RH >= 1 (values up to 1 + RH_TOLERANCE are capped to
+        1) or the vapour pressure reaches p; INPUT_NONPHYSICAL for RH < 0 or > 1 +
+        RH_TOLERANCE, T <= 0, p <= 0; INPUT_MISSING for NaN.
+
+    Notes
+    -----
+    x_w = RH · f(T, p) · p_sat(T) / p, x = (1 - x_w) x_dry + x_w e_H2O, with p_sat from
+    :func:`saturation_pressure` and f from :func:`enhancement_factor`.
+
+    Raises
+    ------
+    ModelInputError
+        ``dry`` is not a valid composition.
+    """
+    T = _f(T)
+    p = _f(p)
+    RH = _f(RH)
+    xd = _check_composition(_f(dry), "dry")
+    shape = np.broadcast_shapes(T.shape, p.shape, RH.shape, xd.shape[:-1])
+    status = _status_like(shape)
+    Tb, pb, rb = (np.broadcast_to(a, shape) for a in (T, p, RH))
+    miss = np.isnan(Tb) | np.isnan(pb) | np.isnan(rb)
+    with np.errstate(invalid="ignore"):
+        nonphys = ~miss & ((Tb <= 0) | (pb <= 0) | (rb < 0) | (rb > 1 + RH_TOLERANCE))
+        sat = ~miss & ~nonphys & (rb >= 1)
+    status[miss] |= np.uint32(Reason.INPUT_MISSING)
+    status[nonphys] |= np.uint32(Reason.INPUT_NONPHYSICAL)
+    rc = np.minimum(rb, 1.0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        xw = rc * enhancement_factor(Tb, pb) * saturation_pressure(Tb) / pb
+        boil = xw >= 1.0
+    sat |= boil & (status == 0)
+    status[sat] |= np.uint32(Reason.HUMIDITY_SATURATED)
+    xw = np.minimum(xw, 1.0)
+    x = (1.0 - xw)[..., None] * xd
+    x[..., INDEX["H2O"]] += xw
+    err = (status & ~np.uint32(Reason.HUMIDITY_SATURATED)) != 0
+    if err.any():
+        x[err] = np.nan
+    return x, status

@@ -1,0 +1,3 @@
+"""Shared pytest configuration for brayscope's tests (helpers may append fixtures here)."""
+
+from __future__ import annotations
