@@ -397,11 +397,12 @@ def render_table(
         title="brayscope calc (advisory)",
         box=box.SIMPLE_HEAD if terminal else box.ASCII2,
         show_lines=False,
+        title_justify="left",
     )
     table.add_column("quantity", no_wrap=True)
     table.add_column("unit", no_wrap=True)
     for t in title_cols:
-        table.add_column(t, justify="right")
+        table.add_column(t, justify="right", max_width=24)
     if any(r.timestamp is not None for r in results):
         table.add_row(
             "timestamp", "", *["" if r.timestamp is None else str(r.timestamp) for r in results]

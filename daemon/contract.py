@@ -501,9 +501,7 @@ def _contract_cached(unit_type: UnitType) -> Contract:
         **meas_fields,
     )
     param_fields: dict[str, Any] = {s.name: _field(s) for s in unit_type.parameters}
-    parameters = create_model(
-        f"{tag}Parameters", __config__=_STRICT, **param_fields
-    )
+    parameters = create_model(f"{tag}Parameters", __config__=_STRICT, **param_fields)
     record = create_model(
         f"{tag}Record",
         __config__=_STRICT,
