@@ -36,7 +36,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from models import iso6976_data as iso
 from models.species import INDEX, N_SPECIES, SPECIES
-from models.status import ModelInputError
+from models.status import ModelInputError, Reason
 
 __all__ = [
     "GAS_COMPONENTS",
@@ -53,6 +53,8 @@ __all__ = [
 ]
 
 FloatArray = NDArray[np.float64]
+StatusArray = NDArray[np.uint32]
+OnInvalid = Literal["raise", "nan"]
 
 #: Components accepted by :func:`gas_fuel` (names as in :data:`models.species.SPECIES`).
 GAS_COMPONENTS: tuple[str, ...] = (
@@ -133,7 +135,12 @@ class FuelProperties:
         inert fuel components +, O2 consumed −.  Sums to 1 over species.
     composition : ndarray (..., N_SPECIES) or None  mole fractions (gas fuel only)
     liquid_cp : ndarray [J/(kg K)]  (NaN for gas)
-    combustion_temperature, metering_temperature [K], metering_pressure [Pa]
+    combustion_temperature, metering_temperature, wobbe_combustion_temperature [K]
+    metering_pressure [Pa]
+    status : ndarray of uint32, shape (...), or None
+        :class:`models.status.Reason` bits per batch element (``FUEL_INVALID``,
+        ``INPUT_MISSING``); non-zero only with ``gas_fuel(..., on_invalid="nan")``, where the
+        flagged elements carry NaN properties.  None means "all valid".
     """
 
     kind: Literal["gas", "liquid"]
@@ -156,6 +163,7 @@ class FuelProperties:
     metering_temperature: float = 288.15
     metering_pressure: float = 101325.0
     wobbe_combustion_temperature: float = 288.15
+    status: StatusArray | None = None
 
     @property
     def shape(self) -> tuple[int, ...]:
@@ -219,9 +227,19 @@ def stoichiometric_air_ratio(
 
 # --------------------------------------------------------------------------------------------
 def _composition(
-    composition: Mapping[str, float | ArrayLike], allowed: tuple[str, ...], who: str
-) -> tuple[tuple[str, ...], FloatArray]:
-    """Validate and normalise a composition; return (names, x[..., k])."""
+    composition: Mapping[str, float | ArrayLike],
+    allowed: tuple[str, ...],
+    who: str,
+    on_invalid: OnInvalid = "raise",
+) -> tuple[tuple[str, ...], FloatArray, StatusArray]:
+    """Validate and normalise a composition; return (names, x[..., k], status[...]).
+
+    With ``on_invalid="nan"`` bad batch elements become NaN rows with a status bit
+    (INPUT_MISSING for NaN, FUEL_INVALID for out-of-range values or sums); unknown species and
+    unbroadcastable shapes always raise (they are configuration errors, not plant data).
+    """
+    if on_invalid not in ("raise", "nan"):
+        raise ModelInputError("on_invalid", on_invalid, "'raise' or 'nan'")
     if not isinstance(composition, Mapping) or len(composition) == 0:
         raise ModelInputError(
             "composition", composition, "a non-empty mapping species -> mole fraction"
@@ -237,7 +255,9 @@ def _composition(
                 f"composition[{key!r}]", val, f"{who} accepts {', '.join(allowed)}", hint
             )
         arr = np.asarray(val, dtype=np.float64)
-        if not np.all(np.isfinite(arr)) or np.any(arr < 0.0) or np.any(arr > 1.0 + 1e-12):
+        if on_invalid == "raise" and (
+            not np.all(np.isfinite(arr)) or np.any(arr < 0.0) or np.any(arr > 1.0 + 1e-12)
+        ):
             raise ModelInputError(
                 f"composition[{key!r}]", val, "a finite mole fraction 0 to 1 [mol/mol]"
             )
@@ -251,14 +271,24 @@ def _composition(
             "values of broadcastable shapes", str(exc),
         ) from exc  # fmt: skip
     total = np.sum(stacked, axis=-1)
-    bad = np.abs(total - 1.0) > _COMPOSITION_TOL
-    if np.any(bad):
+    missing = np.any(np.isnan(stacked), axis=-1)
+    with np.errstate(invalid="ignore"):
+        out_of_range = np.any((stacked < 0.0) | (stacked > 1.0 + 1e-12), axis=-1)
+        off_sum = np.abs(total - 1.0) > _COMPOSITION_TOL
+    invalid = ~missing & (out_of_range | off_sum)
+    if on_invalid == "raise" and np.any(invalid):
         raise ModelInputError(
             "sum(composition)",
-            total[bad].tolist() if total.ndim else float(total),
+            total[invalid].tolist() if total.ndim else float(total),
             f"1 ± {_COMPOSITION_TOL:g} (mole fractions, not percent)",
         )
-    return tuple(names), stacked / total[..., None]
+    status = np.zeros(total.shape, dtype=np.uint32)
+    status[missing] |= np.uint32(Reason.INPUT_MISSING)
+    status[invalid] |= np.uint32(Reason.FUEL_INVALID)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        x = stacked / total[..., None]
+    x[(missing | invalid)] = np.nan
+    return tuple(names), x, status
 
 
 def _check_temperature_C(name: str, t_C: float, column: int | None, valid: tuple[float, ...],
@@ -358,7 +388,7 @@ def iso6976(
     ISO 6976:2016, Natural gas — Calculation of calorific values, density, relative density
     and Wobbe indices from composition.  International Organization for Standardization.
     """
-    names, x = _composition(composition, ISO6976_COMPONENTS, "iso6976()")
+    names, x, _ = _composition(composition, ISO6976_COMPONENTS, "iso6976()")
     kc = _check_temperature_C(
         "combustion_temperature_C",
         combustion_temperature_C,
@@ -401,6 +431,7 @@ def gas_fuel(
     metering_temperature: float = 288.15,
     metering_pressure: float = 101325.0,
     wobbe_combustion_temperature: float = 288.15,
+    on_invalid: OnInvalid = "raise",
 ) -> FuelProperties:
     """Properties of a gaseous fuel from its molar composition (ISO 6976:2016).
 
@@ -416,6 +447,11 @@ def gas_fuel(
     metering_pressure : float [Pa]  90 to 110 kPa (default 101 325 Pa).
     wobbe_combustion_temperature : float [K]  combustion reference of the Wobbe index
         (default 288.15 K, i.e. the ISO "15 °C/15 °C" Wobbe index).
+    on_invalid : {"raise", "nan"}
+        "raise" (default): any NaN, negative, > 1 or off-sum element raises ModelInputError.
+        "nan": such batch elements get NaN properties and a ``status`` bit (INPUT_MISSING /
+        FUEL_INVALID) so one bad analyser reading never hides the rest of the batch.  Unknown
+        species and bad reference conditions raise either way.
 
     Returns
     -------
@@ -431,7 +467,7 @@ def gas_fuel(
     ----------
     ISO 6976:2016 (see :func:`iso6976`).
     """
-    names, x = _composition(composition, GAS_COMPONENTS, "gas_fuel()")
+    names, x, status = _composition(composition, GAS_COMPONENTS, "gas_fuel()", on_invalid)
     temps = {
         "combustion_temperature": (combustion_temperature, iso.COMBUSTION_TEMPERATURES_C),
         "wobbe_combustion_temperature": (
@@ -486,6 +522,7 @@ def gas_fuel(
         metering_temperature=float(metering_temperature),
         metering_pressure=p,
         wobbe_combustion_temperature=float(wobbe_combustion_temperature),
+        status=status,
     )
 
 
@@ -591,4 +628,5 @@ def liquid_fuel(  # noqa: PLR0917 (positional order is the published API)
         product_delta=delta,
         composition=None,
         liquid_cp=np.array(cp, dtype=np.float64),
+        status=np.zeros(shape, dtype=np.uint32),
     )

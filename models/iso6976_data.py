@@ -168,8 +168,9 @@ _TOL_C = 1e-6
 
 def _column(t_C: float, temps: tuple[float, ...]) -> int | None:
     for i, t in enumerate(temps):
-        if abs(t_C - t) <= _TOL_C + 0.006 * (t == 15.55):
-            # 15.55 °C is the standard's rounding of 60 °F (15.5556 °C): accept either.
+        # 15.55 °C is the standard's rounding of 60 °F (15.5556 °C): accept either spelling.
+        tol = 0.006 if t == 15.55 else _TOL_C
+        if abs(t_C - t) <= tol:
             return i
     return None
 
