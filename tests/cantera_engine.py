@@ -30,8 +30,10 @@ Humid air
 ---------
 The water mole fraction at the compressor inlet is fixed by the ambient state: CoolProp's
 humid-air model (ASHRAE RP-1485, HAPropsSI output ``psi_w``), which includes the enhancement
-factor, or - for ``saturation="water"`` below 0 degC, the meteorological convention of relative
-humidity over liquid water - ``RH * f * p_sat,w(T) / p`` with CoolProp's IAPWS-95 water.
+factor and refers RH to ice below 0 degC (``saturation="ice"``, the default, the same
+convention as ``models.gas.humid_air``), or - for ``saturation="water"`` below 0 degC, the
+meteorological convention of relative humidity over liquid water - ``RH * f * p_sat,w(T) / p``
+with CoolProp's IAPWS-95 water.
 
 Consistency with the inverse (documented differences)
 -----------------------------------------------------
@@ -299,7 +301,7 @@ def _p_sat_water(T: float) -> float:
 
 
 def humid_air_composition(
-    T: float, p: float, RH: float, saturation: Literal["ice", "water"] = "water"
+    T: float, p: float, RH: float, saturation: Literal["ice", "water"] = "ice"
 ) -> dict[str, float]:
     """Mole fractions of humid air at ambient (T [K], p [Pa], RH [1]).
 
@@ -380,7 +382,7 @@ class OperatingPoint:
     inlet_pressure_loss: float = 1000.0
     exhaust_back_pressure: float = 3000.0
     inlet_temperature_rise: float = 0.0
-    saturation: Literal["ice", "water"] = "water"
+    saturation: Literal["ice", "water"] = "ice"
 
     def with_(self, **changes: Any) -> OperatingPoint:
         return replace(self, **changes)
@@ -535,7 +537,7 @@ def reconstruct_one(
     lhv: float,
     parameters: Mapping[str, float],
     data: Data = "nasa",
-    saturation: Literal["ice", "water"] = "water",
+    saturation: Literal["ice", "water"] = "ice",
     real_gas: bool = True,
     max_iter: int = 50,
     tol: float = 1e-10,
