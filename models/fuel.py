@@ -387,6 +387,15 @@ def iso6976(
     ----------
     ISO 6976:2016, Natural gas — Calculation of calorific values, density, relative density
     and Wobbe indices from composition.  International Organization for Standardization.
+
+    Examples
+    --------
+    Annex D, Example 1 of the standard (15 °C / 15 °C):
+
+    >>> r = iso6976({"CH4": 0.933212, "C2H6": 0.025656, "C3H8": 0.015368,
+    ...              "N2": 0.010350, "CO2": 0.015414})
+    >>> print(f"{r['gross_molar'] / 1e3:.7f} kJ/mol, Z = {r['compression_factor']:.8f}")
+    906.1799588 kJ/mol, Z = 0.99776224
     """
     names, x, _ = _composition(composition, ISO6976_COMPONENTS, "iso6976()")
     kc = _check_temperature_C(
@@ -466,6 +475,12 @@ def gas_fuel(
     References
     ----------
     ISO 6976:2016 (see :func:`iso6976`).
+
+    Examples
+    --------
+    >>> f = gas_fuel({"CH4": 0.95, "C2H6": 0.03, "N2": 0.02})
+    >>> print(f"{f.lhv / 1e6:.2f} MJ/kg, air {f.stoichiometric_air:.2f} kg/kg")
+    48.21 MJ/kg, air 16.61 kg/kg
     """
     names, x, status = _composition(composition, GAS_COMPONENTS, "gas_fuel()", on_invalid)
     temps = {
