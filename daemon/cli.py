@@ -17,6 +17,7 @@ from daemon import __version__
 #: sub-command name -> module implementing it, in the order ``--help`` lists them.
 COMMANDS: dict[str, str] = {
     "calc": "daemon.calc",
+    "bench": "daemon.bench",
 }
 
 CAUTION = (
