@@ -465,3 +465,10 @@ def test_stoichiometric_air_with_cycle_dry_air() -> None:
     x = np.asarray(gas_mod.DRY_AIR)
     y = x * gas_mod.MOLAR_MASS / np.sum(x * gas_mod.MOLAR_MASS)
     assert stoichiometric_air_ratio(f, y) == pytest.approx(f.stoichiometric_air, rel=1e-3)
+
+
+def test_docstring_examples_run() -> None:
+    import doctest
+
+    result = doctest.testmod(fuel, optionflags=doctest.NORMALIZE_WHITESPACE)
+    assert result.attempted >= 4 and result.failed == 0
