@@ -198,6 +198,12 @@ def update(state: RStatisticState, x_new: ArrayLike) -> tuple[RStatisticState, F
     step inflates the deviation from the lagging filtered mean far more than the successive
     difference, so R rises well above 1.
 
+    On a ramp of s per sample the filtered mean lags by :math:`s(1-\\lambda_1)/\\lambda_1`,
+    so :math:`E[\\nu^2_f] = 2\\sigma^2/(2-\\lambda_1) + (s/\\lambda_1)^2` and
+    :math:`E[\\delta^2_f] = 2\\sigma^2 + s^2`: with the default factors a drift of
+    0.1 σ per sample lifts R only to about 1.2, 0.3 σ to about 2.9.  Slow drifts are
+    caught only if the tick is long enough for the drift per sample to approach the noise.
+
     The test assumes the noise is independent from sample to sample.  Sampling much faster
     than the noise decorrelates (a heavily filtered transmitter, a historian interpolating
     between stored points) makes successive differences small and R large: choose the tick
