@@ -374,10 +374,10 @@ def steady_flags(
 
     Choice of defaults: the published guidance for the default filter factors puts the
     critical value of R between about 1.2 and 2.5 depending on the risk accepted
-    (Cao & Rhinehart 1997).  Our Monte-Carlo of the null distribution (independent normal
-    noise, default factors) gives P(R < 1.2) ≈ 0.81 and P(R > 2.0) ≈ 0.002: a steady
-    signal qualifies quickly and is seldom thrown out, while a ramp that pushes R above 2 is
-    flagged at once.  Both thresholds are per-unit parameters.
+    (Cao & Rhinehart 1997; figures from memory).  Our Monte-Carlo of the null
+    distribution (independent normal noise, default factors) gives P(R < 1.2) ≈ 0.81 and
+    P(R > 2.0) ≈ 0.002: a steady signal qualifies quickly and is seldom thrown out, while a
+    ramp that pushes R above 2 is flagged at once.  Both thresholds are per-unit parameters.
 
     References
     ----------
