@@ -15,6 +15,7 @@ status array, so one bad snapshot never hides the others.
 from __future__ import annotations
 
 from enum import IntFlag
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -89,7 +90,7 @@ WARNING_REASONS = (
 )
 
 
-def reason_names(code: int | np.integer[object]) -> list[str]:
+def reason_names(code: int | np.integer[Any]) -> list[str]:
     """Return the lower-case names of the bits set in ``code`` (empty list for OK).
 
     >>> reason_names(Reason.NOT_CONVERGED | Reason.INPUT_MISSING)
