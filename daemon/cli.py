@@ -17,6 +17,8 @@ from daemon import __version__
 #: sub-command name -> module implementing it, in the order ``--help`` lists them.
 COMMANDS: dict[str, str] = {
     "calc": "daemon.calc",
+    "check": "daemon.check_cmd",
+    "db": "daemon.db_cmd",
     "bench": "daemon.bench",
 }
 
