@@ -7,6 +7,7 @@ See ``docs/feeds.md`` for payload forms, reason codes and the runtime integratio
 """
 
 from daemon.feeds.decode import (
+    Batch,
     Decoder,
     DecoderConfigError,
     DecodeResult,
@@ -18,6 +19,7 @@ from daemon.feeds.decode import (
 )
 
 __all__ = [
+    "Batch",
     "DecodeResult",
     "Decoder",
     "DecoderConfigError",

@@ -56,6 +56,7 @@ from typing import Any, Protocol
 from daemon.types import Quarantined, Reading
 
 __all__ = [
+    "Batch",
     "DecodeResult",
     "Decoder",
     "DecoderConfigError",
@@ -102,11 +103,27 @@ class TagLike(Protocol):
 
 @dataclass(frozen=True, slots=True)
 class TagRoute:
-    """A tag resolved for decoding: where its values come from and where they go."""
+    """A tag resolved for decoding: where its values come from and where they go.
+
+    Attributes
+    ----------
+    unit : str
+        Unit name.
+    tag : TagLike
+        The tag (topic, key, measurement, uom, plausible range, ``to_si``).
+    si_unit : str or None
+        SI unit of the measurement (``"K"``, ``"Pa"``, ``"kg/s"``, ``"W"``, ``"1"``) when known;
+        drives the built-in physical checks (T ≤ 0 K, p ≤ 0 Pa, negative flow).
+    phys_low, phys_high : float
+        Physically possible range in SI from the unit type's measurement schema
+        (``FieldSpec.low``/``high``); values outside are ``nonphysical``.
+    """
 
     unit: str
     tag: TagLike
-    si_unit: str | None  # "K", "Pa", "kg/s", "W", "1" when known
+    si_unit: str | None = None
+    phys_low: float = -math.inf
+    phys_high: float = math.inf
 
     @property
     def measurement(self) -> str:
@@ -147,6 +164,57 @@ class DecodeResult:
     readings: tuple[Reading, ...]
     quarantined: tuple[Quarantined, ...]
     seq: int | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class Batch:
+    """Decoded output of several messages, committed (and acknowledged) together.
+
+    Attributes
+    ----------
+    readings : tuple of Reading
+        Accepted readings, in arrival order.
+    quarantined : tuple of Quarantined
+        Rejected items, in arrival order.
+    messages : int
+        Number of messages in the batch.
+    received : int
+        Number of items the messages carried; ``received == len(readings) + len(quarantined)``.
+    duplicates : int
+        Messages the broker flagged as redeliveries (DUP), informational.
+    """
+
+    readings: tuple[Reading, ...]
+    quarantined: tuple[Quarantined, ...]
+    messages: int
+    received: int
+    duplicates: int = 0
+
+    @classmethod
+    def from_results(cls, results: Sequence[DecodeResult], dups: int = 0) -> Batch:
+        """Concatenate decode results (in order) into one batch."""
+        readings: list[Reading] = []
+        quarantined: list[Quarantined] = []
+        received = 0
+        for r in results:
+            readings.extend(r.readings)
+            quarantined.extend(r.quarantined)
+            received += r.received
+        return cls(tuple(readings), tuple(quarantined), len(results), received, dups)
+
+    def accepted_by_unit(self) -> dict[str, int]:
+        """Number of accepted readings per unit."""
+        out: dict[str, int] = {}
+        for r in self.readings:
+            out[r.unit] = out.get(r.unit, 0) + 1
+        return out
+
+    def rejected_by_reason(self) -> dict[str, int]:
+        """Number of quarantined items per reason code."""
+        out: dict[str, int] = {}
+        for q in self.quarantined:
+            out[q.reason] = out.get(q.reason, 0) + 1
+        return out
 
 
 class _Reject(Exception):  # noqa: N818 - internal control flow, never escapes this module
@@ -282,11 +350,10 @@ def _quality(raw: object) -> str:
 
 def _si_unit_of(tag: TagLike) -> str | None:
     """The SI unit a tag converts to, when the tag tells (config converter's ``target``)."""
-    for attr in ("si_unit", "target"):
-        v = getattr(tag, attr, None)
-        if isinstance(v, str):
-            return v
-    conv = getattr(tag, "converter", None)
+    try:
+        conv = getattr(tag, "converter", None)
+    except RuntimeError:  # a TagConfig not compiled by load_plant
+        conv = None
     v = getattr(conv, "target", None)
     if isinstance(v, str):
         return v
@@ -300,7 +367,22 @@ def _si_unit_of(tag: TagLike) -> str | None:
     return None
 
 
-def _nonphysical(si_unit: str | None, x: float) -> str | None:
+def _measurement_specs(unit: Any) -> dict[str, Any]:
+    """Measurement FieldSpecs of a unit's type, by name (empty when not resolvable)."""
+    try:
+        ut = unit.unit_type
+    except (RuntimeError, AttributeError):
+        return {}
+    return {f.name: f for f in getattr(ut, "measurements", ())}
+
+
+def _nonphysical(route: TagRoute, x: float) -> str | None:
+    si_unit = route.si_unit
+    if not route.phys_low <= x <= route.phys_high:
+        return (
+            f"{x:.6g} {si_unit or 'SI'} outside the physically possible range "
+            f"[{route.phys_low:g}, {route.phys_high:g}] of {route.measurement}"
+        )
     if si_unit == "K" and x <= 0.0:
         return f"absolute temperature {x:.6g} K is not above 0 K"
     if si_unit == "Pa" and x <= 0.0:
@@ -320,8 +402,11 @@ class Decoder:
     limits : DecoderLimits
         Payload size, timestamp window and quarantine truncation.
     baro_measurement : str
-        Measurement whose accepted values serve as the barometric reference [Pa] of gauge
-        tags of the same unit (``"ambient_pressure"``).
+        Barometric reference [Pa] of gauge tags that do not name one themselves (tags of
+        ``daemon.config`` do, via ``baro_reference``; None there means a fixed ``baro_pa``).
+        The latest accepted value of a reference measurement is held per unit (no age limit;
+        ambient pressure moves slowly) and a gauge value seen before any reference is
+        quarantined as ``conversion_error``.
 
     Raises
     ------
@@ -367,11 +452,30 @@ class Decoder:
                 if r.tag.key in table:
                     raise DecoderConfigError(f"key {r.tag.key!r} repeated on topic {topic!r}")
                 table[r.tag.key] = r
-            # barometric reference first, so gauge tags of the same message can use it
+            self._keyed[topic] = table
+        # measurements serving as barometric reference, per unit
+        self._baro_sources: set[tuple[str, str]] = set()
+        for rs in by_topic.values():
+            for r in rs:
+                ref = self._baro_ref(r.tag)
+                if ref is not None:
+                    self._baro_sources.add((r.unit, ref))
+        for topic, table in self._keyed.items():
+            # barometric references first, so gauge tags of the same message can use them
             self._keyed[topic] = dict(
-                sorted(table.items(), key=lambda kv: kv[1].measurement != baro_measurement)
+                sorted(
+                    table.items(),
+                    key=lambda kv: (kv[1].unit, kv[1].measurement) not in self._baro_sources,
+                )
             )
-        self._baro: dict[str, float] = {}
+        self._baro: dict[tuple[str, str], float] = {}
+
+    def _baro_ref(self, tag: TagLike) -> str | None:
+        """Measurement giving a tag's barometric reference (config's ``baro_reference``)."""
+        if hasattr(tag, "baro_reference"):
+            ref = tag.baro_reference
+            return ref if isinstance(ref, str) else None
+        return self.baro_measurement
 
     @classmethod
     def from_plant(cls, plant: Any, limits: DecoderLimits | None = None) -> Decoder:
@@ -379,11 +483,20 @@ class Decoder:
 
         ``limits`` defaults to the plant's ``[daemon]`` values when present.
         """
-        routes = [
-            TagRoute(unit=name, tag=tag, si_unit=_si_unit_of(tag))
-            for name, unit in plant.units.items()
-            for tag in unit.tags
-        ]
+        routes: list[TagRoute] = []
+        for name, unit in plant.units.items():
+            specs = _measurement_specs(unit)
+            for tag in unit.tags:
+                spec = specs.get(tag.measurement)
+                routes.append(
+                    TagRoute(
+                        unit=name,
+                        tag=tag,
+                        si_unit=_si_unit_of(tag) if spec is None else spec.unit,
+                        phys_low=-math.inf if spec is None else float(spec.low),
+                        phys_high=math.inf if spec is None else float(spec.high),
+                    )
+                )
         if limits is None:
             d = getattr(plant, "daemon", None)
             limits = DecoderLimits(
@@ -566,12 +679,14 @@ class Decoder:
             if quality == "bad":
                 raise _Reject("bad_quality", f"source quality {q_raw!r} is bad")
             try:
-                si = float(tag.to_si(x, baro_pa=self._baro.get(route.unit)))
+                ref = self._baro_ref(tag)
+                baro = None if ref is None else self._baro.get((route.unit, ref))
+                si = float(tag.to_si(x, baro_pa=baro))
             except (ValueError, TypeError, ArithmeticError) as exc:
                 raise _Reject("conversion_error", f"{tag.uom}: {str(exc)[:200]}") from None
             if not math.isfinite(si):
                 raise _Reject("conversion_error", f"{x!r} {tag.uom} gives a non-finite SI value")
-            why = _nonphysical(route.si_unit, si)
+            why = _nonphysical(route, si)
             if why is not None:
                 raise _Reject("nonphysical", f"{x!r} {tag.uom}: {why}")
             if not tag.low <= x <= tag.high:
@@ -590,8 +705,8 @@ class Decoder:
                 measurement=route.measurement,
                 source_ts=source_ts,
             )
-        if route.measurement == self.baro_measurement:
-            self._baro[route.unit] = si
+        if (route.unit, route.measurement) in self._baro_sources:
+            self._baro[(route.unit, route.measurement)] = si
         return Reading(
             unit=route.unit,
             measurement=route.measurement,

@@ -1,0 +1,309 @@
+"""Snapshot assembly: readings in, one :class:`~daemon.types.Snapshot` per unit per tick out.
+
+Rules (per unit, per measurement):
+
+* **Sample and hold.**  The latest *usable* reading (quality good or uncertain) is held and
+  used at every tick until it is older than the tag's ``max_age_s`` (the largest when several
+  tags feed one measurement).  Age is ``tick_ts − source_ts``, clamped at 0 for readings
+  stamped slightly after the tick.
+* **Order.**  A reading older than (or as old as) the held one never replaces it: shuffled and
+  redelivered readings cannot move a value back in time.
+* **Bad marks.**  A quarantined value that belonged to a known measurement (reason
+  ``bad_quality``, ``out_of_range``, ``non_finite``, ``wrong_type``, ``conversion_error`` →
+  ``INPUT_BAD_QUALITY``; ``nonphysical`` → ``INPUT_NONPHYSICAL``) and is newer than the held
+  value makes the measurement NaN with that bit until a newer usable reading arrives: a failing
+  sensor is never papered over by its last good value.  Timestamp rejections mark nothing (a
+  clock problem is not a sensor fault).
+* **Tick output.**  ``values`` NaN and a :class:`models.status.Reason` bit where the value is
+  missing (``INPUT_MISSING``: never received), stale (``INPUT_STALE``) or bad (see above);
+  ``age_s`` NaN when nothing was ever held.
+* **Silence.**  A unit for which nothing at all has arrived yet (no reading, no bad mark) emits
+  no snapshot; once anything arrived it emits one every tick, NaN and flagged as it ages.
+* **Ticks** are aligned to multiples of ``tick_s`` in UTC epoch seconds (``floor(now / tick_s) ·
+  tick_s``).  When the caller falls behind, only the latest due tick is emitted (missed ticks are
+  skipped, never back-filled from held values).
+
+Steady state: per unit the Cao–Rhinehart R-statistic (:mod:`models.steady`) is updated once per
+emitted tick on each signal of ``steady_signals`` (default ``generator_power``), with the
+hysteresis of :func:`models.steady.steady_step`.  ``Snapshot.steady`` is None until every
+signal's filter has passed its warm-up, then True only when all signals are steady;
+``r_statistic`` is the largest R of the signals (None when not finite).
+
+The only I/O-like dependency is the clock, injected.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from collections.abc import Callable, Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from daemon.types import Quarantined, Reading, Snapshot
+from models.status import Reason
+from models.steady import DEFAULT_ENTER, DEFAULT_LEAVE, RStatisticState, steady_step, update
+
+__all__ = [
+    "BAD_MARK_REASONS",
+    "Assembler",
+    "AssemblyCounters",
+    "UnitSpec",
+]
+
+#: Quarantine reasons that mark a measurement bad, and the bit they set.
+BAD_MARK_REASONS: dict[str, Reason] = {
+    "bad_quality": Reason.INPUT_BAD_QUALITY,
+    "out_of_range": Reason.INPUT_BAD_QUALITY,
+    "non_finite": Reason.INPUT_BAD_QUALITY,
+    "wrong_type": Reason.INPUT_BAD_QUALITY,
+    "conversion_error": Reason.INPUT_BAD_QUALITY,
+    "nonphysical": Reason.INPUT_NONPHYSICAL,
+}
+
+
+@dataclass(frozen=True)
+class UnitSpec:
+    """What the assembler needs to know about a unit.
+
+    Attributes
+    ----------
+    name : str
+        Unit name.
+    unit_type : str
+        Unit type name.
+    max_age_s : mapping of str to float
+        Measurement → maximum age of a held value [s]; its keys are the snapshot's
+        measurements (together with ``extra_measurements``).
+    extra_measurements : tuple of str
+        Measurements the unit type needs but no tag maps (always ``INPUT_MISSING``).
+    """
+
+    name: str
+    unit_type: str
+    max_age_s: Mapping[str, float]
+    extra_measurements: tuple[str, ...] = ()
+
+    @property
+    def measurements(self) -> tuple[str, ...]:
+        extra = tuple(m for m in self.extra_measurements if m not in self.max_age_s)
+        return (*self.max_age_s, *extra)
+
+    @classmethod
+    def from_config(cls, name: str, unit: Any) -> UnitSpec:
+        """Build from a ``daemon.config.UnitConfig`` (tags → measurements and max ages)."""
+        ages: dict[str, float] = {}
+        for tag in unit.tags:
+            ages[tag.measurement] = max(ages.get(tag.measurement, 0.0), float(tag.max_age_s))
+        extra: tuple[str, ...] = ()
+        try:
+            ut = unit.unit_type
+            extra = tuple(f.name for f in ut.measurements if f.required)
+        except (RuntimeError, AttributeError):
+            extra = ()
+        return cls(name=name, unit_type=str(unit.type), max_age_s=ages, extra_measurements=extra)
+
+
+@dataclass
+class _Held:
+    value: float = math.nan
+    source_ts: float = -math.inf
+    quality: str = ""
+    bad_ts: float = -math.inf
+    bad_bit: int = 0
+
+
+@dataclass
+class _UnitState:
+    spec: UnitSpec
+    held: dict[str, _Held] = field(default_factory=dict)
+    seen: bool = False
+    steady_state: RStatisticState | None = None
+    steady_flag: Any = False
+
+
+@dataclass
+class AssemblyCounters:
+    """What the assembler ignored (for logs and metrics)."""
+
+    older_ignored: int = 0
+    unknown_ignored: int = 0
+
+
+class Assembler:
+    """Hold the latest readings per unit and emit aligned snapshots.
+
+    Parameters
+    ----------
+    units : sequence of UnitSpec
+        Units to assemble.
+    tick_s : float
+        Tick period [s].
+    clock : callable
+        Wall clock [s since the epoch, UTC]; used when ``tick()`` gets no ``now``.
+    steady_signals : sequence of str
+        Measurements whose R-statistic decides the steady flag.
+    steady_enter, steady_leave : float
+        Hysteresis thresholds of R [1] (:func:`models.steady.steady_step`).
+    uncertain_as_bad : bool
+        Treat quality ``"uncertain"`` as bad (NaN, ``INPUT_BAD_QUALITY``); by default an
+        uncertain value is used.
+    """
+
+    def __init__(
+        self,
+        units: Sequence[UnitSpec],
+        tick_s: float,
+        *,
+        clock: Callable[[], float] = time.time,
+        steady_signals: Sequence[str] = ("generator_power",),
+        steady_enter: float = DEFAULT_ENTER,
+        steady_leave: float = DEFAULT_LEAVE,
+        uncertain_as_bad: bool = False,
+    ) -> None:
+        if not (tick_s > 0 and math.isfinite(tick_s)):
+            raise ValueError(f"tick_s must be a positive number of seconds, got {tick_s!r}")
+        self.tick_s = float(tick_s)
+        self._clock = clock
+        self.steady_signals = tuple(steady_signals)
+        self.steady_enter = steady_enter
+        self.steady_leave = steady_leave
+        self.uncertain_as_bad = uncertain_as_bad
+        self._units: dict[str, _UnitState] = {u.name: _UnitState(spec=u) for u in units}
+        self._last_tick = -math.inf
+        self.counters = AssemblyCounters()
+
+    @classmethod
+    def from_plant(cls, plant: Any, **kwargs: Any) -> Assembler:
+        """Build from a ``daemon.config.PlantConfig`` (tick from ``daemon.tick_s``)."""
+        specs = [UnitSpec.from_config(name, u) for name, u in plant.units.items()]
+        return cls(specs, float(plant.daemon.tick_s), **kwargs)
+
+    # -- input -----------------------------------------------------------------------------
+
+    def ingest(self, readings: Iterable[Reading], quarantined: Iterable[Quarantined] = ()) -> None:
+        """Take in accepted readings and quarantined items (order within a call is free)."""
+        for r in readings:
+            st = self._units.get(r.unit)
+            if st is None or r.measurement not in st.spec.max_age_s:
+                self.counters.unknown_ignored += 1
+                continue
+            st.seen = True
+            h = st.held.setdefault(r.measurement, _Held())
+            if r.quality == "bad" or (self.uncertain_as_bad and r.quality == "uncertain"):
+                if r.source_ts > h.bad_ts:
+                    h.bad_ts, h.bad_bit = r.source_ts, int(Reason.INPUT_BAD_QUALITY)
+                continue
+            if r.source_ts <= h.source_ts:
+                self.counters.older_ignored += 1
+                continue
+            h.value, h.source_ts, h.quality = r.value, r.source_ts, r.quality
+        for q in quarantined:
+            bit = BAD_MARK_REASONS.get(q.reason)
+            if bit is None or q.unit is None or q.measurement is None:
+                continue
+            st = self._units.get(q.unit)
+            if st is None or q.measurement not in st.spec.max_age_s:
+                continue
+            st.seen = True
+            h = st.held.setdefault(q.measurement, _Held())
+            ts = q.source_ts if q.source_ts is not None else q.received_ts
+            if ts > h.bad_ts:
+                h.bad_ts, h.bad_bit = ts, int(bit)
+
+    # -- ticks -----------------------------------------------------------------------------
+
+    def tick_at(self, now: float) -> float:
+        """The tick boundary at or before ``now`` [s]: ``floor(now / tick_s) · tick_s``."""
+        return math.floor(now / self.tick_s) * self.tick_s
+
+    def next_tick_at(self, now: float | None = None) -> float:
+        """The first tick boundary strictly after ``now`` [s]."""
+        t = self._clock() if now is None else now
+        return self.tick_at(t) + self.tick_s
+
+    def tick(self, now: float | None = None) -> list[Snapshot]:
+        """Emit the snapshots of the latest due tick, once; empty when it was already emitted.
+
+        Parameters
+        ----------
+        now : float, optional
+            Current time [s since the epoch]; the injected clock by default.
+        """
+        t = self.tick_at(self._clock() if now is None else now)
+        if t <= self._last_tick:
+            return []
+        self._last_tick = t
+        out: list[Snapshot] = []
+        for st in self._units.values():
+            if not st.seen:
+                continue
+            snap = self._snapshot(st, t)
+            out.append(self._with_steady(st, snap))
+        return out
+
+    def snapshot(self, unit: str, ts: float) -> Snapshot | None:
+        """The snapshot of one unit at ``ts`` without advancing ticks or the steady filter."""
+        st = self._units.get(unit)
+        if st is None or not st.seen:
+            return None
+        return self._snapshot(st, ts)
+
+    def _snapshot(self, st: _UnitState, t: float) -> Snapshot:
+        values: dict[str, float] = {}
+        quality: dict[str, int] = {}
+        ages: dict[str, float] = {}
+        for m in st.spec.measurements:
+            h = st.held.get(m)
+            max_age = st.spec.max_age_s.get(m, math.inf)
+            if h is None:
+                values[m], quality[m], ages[m] = math.nan, int(Reason.INPUT_MISSING), math.nan
+                continue
+            has_value = h.source_ts > -math.inf
+            age = max(0.0, t - h.source_ts) if has_value else math.nan
+            ages[m] = age
+            if h.bad_ts > h.source_ts:  # the latest news is bad
+                bits = h.bad_bit
+                if t - h.bad_ts > max_age:
+                    bits |= int(Reason.INPUT_STALE)
+                values[m], quality[m] = math.nan, bits
+            elif age > max_age:
+                values[m], quality[m] = math.nan, int(Reason.INPUT_STALE)
+            else:
+                values[m], quality[m] = h.value, 0
+        return Snapshot(
+            unit=st.spec.name,
+            unit_type=st.spec.unit_type,
+            ts=t,
+            values=values,
+            quality=quality,
+            age_s=ages,
+            steady=None,
+            r_statistic=None,
+        )
+
+    def _with_steady(self, st: _UnitState, snap: Snapshot) -> Snapshot:
+        signals = [s for s in self.steady_signals if s in snap.values]
+        if not signals:
+            return snap
+        x = np.array([snap.values[s] for s in signals], dtype=np.float64)
+        if st.steady_state is None:
+            st.steady_state = RStatisticState.empty(len(signals))
+            st.steady_flag = np.zeros(len(signals), dtype=bool)
+        st.steady_state, R = update(st.steady_state, x)
+        st.steady_flag = steady_step(R, st.steady_flag, self.steady_enter, self.steady_leave)
+        warm = bool(np.all(st.steady_state.count > st.steady_state.warmup))
+        steady: bool | None = bool(np.all(st.steady_flag)) if warm else None
+        r_max = float(np.max(R)) if np.all(np.isfinite(R)) else None
+        return Snapshot(
+            unit=snap.unit,
+            unit_type=snap.unit_type,
+            ts=snap.ts,
+            values=snap.values,
+            quality=snap.quality,
+            age_s=snap.age_s,
+            steady=steady,
+            r_statistic=r_max,
+        )
