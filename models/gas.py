@@ -170,6 +170,10 @@ def _species_tables() -> tuple[FloatArray, FloatArray, FloatArray]:
 
 
 _H_TAB, _CP_TAB, _S_TAB = _species_tables()
+#: All three tables stacked on the row axis: rows 0-5 h, 6-10 cp, 11-16 s; shape (2*17, n).
+_ALL_TAB = np.concatenate([_H_TAB, _CP_TAB, _S_TAB], axis=1).reshape(2 * 17, N_SPECIES)
+_ALL_TAB.flags.writeable = False
+_H, _CP, _S = slice(0, 6), slice(6, 11), slice(11, 17)
 
 
 def _virial_tables() -> FloatArray:
@@ -198,7 +202,7 @@ def _f(a: ArrayLike) -> FloatArray:
     return np.asarray(a, dtype=np.float64)
 
 
-def _horner(c: Sequence[Any], T: FloatArray) -> FloatArray:
+def _horner(c: Any, T: FloatArray) -> FloatArray:
     """c[-1]*T^(n-1) + ... + c[0] with in-place updates (c[k] broadcast against T)."""
     out: FloatArray = c[-1] * T
     for k in range(len(c) - 2, 0, -1):
@@ -213,26 +217,41 @@ def _t_out_of_range(T: FloatArray) -> NDArray[np.bool_]:
         return ~((T >= T_MIN) & (T <= T_MAX))
 
 
-def _check_composition(z: FloatArray, name: str) -> FloatArray:
-    """Validate a composition array (..., N_SPECIES); NaN rows pass through; return normalised."""
+def _compact(z: FloatArray, name: str) -> tuple[NDArray[np.intp], FloatArray]:
+    """Validate a composition (..., N_SPECIES) and return (present species, their fractions).
+
+    Rows containing NaN pass through (and give NaN properties); the result is normalised.
+    """
     if z.ndim == 0 or z.shape[-1] != N_SPECIES:
         raise ModelInputError(
             name, z.shape, f"last axis of length {N_SPECIES} ({', '.join(SPECIES)})"
         )
-    finite_rows = np.all(np.isfinite(z), axis=-1)
-    zf = z[finite_rows]
-    if zf.size:
-        if np.any(zf < -1e-12):
-            bad = zf[np.any(zf < -1e-12, axis=-1)][0]
-            raise ModelInputError(name, bad.tolist(), "fractions >= 0")
-        tot = zf.sum(axis=-1)
-        off = np.abs(tot - 1.0) > _SUM_TOL
-        if np.any(off):
-            raise ModelInputError(f"sum({name})", float(tot[off][0]), f"1 +/- {_SUM_TOL:g}")
+    present = np.any(z != 0.0, axis=tuple(range(z.ndim - 1))) if z.ndim > 1 else z != 0.0
+    idx = np.flatnonzero(present)
+    if idx.size == 0:
+        raise ModelInputError(f"sum({name})", 0.0, f"1 +/- {_SUM_TOL:g}")
+    zk = z[..., idx]
+    tot = zk.sum(axis=-1)
     with np.errstate(invalid="ignore"):
-        out: FloatArray = np.clip(z, 0.0, None) / np.sum(
-            np.clip(z, 0.0, None), axis=-1, keepdims=True
-        )
+        zmin = np.nanmin(zk) if np.isfinite(tot).any() else 0.0
+        if zmin < -1e-12:
+            rows = np.any(zk < -1e-12, axis=-1)
+            raise ModelInputError(name, z[rows][0].tolist(), "fractions >= 0")
+        off = np.abs(tot - 1.0) > _SUM_TOL  # NaN rows compare False
+    if np.any(off):
+        raise ModelInputError(f"sum({name})", float(tot[off][0]), f"1 +/- {_SUM_TOL:g}")
+    if zmin < 0.0:  # round-off negatives
+        zk = np.clip(zk, 0.0, None)
+        tot = zk.sum(axis=-1)
+    zk /= tot[..., None]
+    return idx, zk
+
+
+def _check_composition(z: FloatArray, name: str) -> FloatArray:
+    """Validated, normalised full composition (..., N_SPECIES)."""
+    idx, zk = _compact(z, name)
+    out = np.zeros(z.shape)
+    out[..., idx] = zk
     return out
 
 
@@ -245,21 +264,6 @@ def _range(T: FloatArray) -> int | NDArray[np.bool_]:
     if not low.any():
         return 1
     return low
-
-
-def _pick(tab: FloatArray, T: FloatArray, batch_ndim: int, r: int | NDArray[np.bool_]) -> Any:
-    """Coefficient rows of the right range for each element: tab (2, K, *batch)."""
-    extra = T.ndim - batch_ndim
-    if isinstance(r, int):
-        c = tab[r]
-        if extra > 0:  # T has more leading dims than the mixture: unit axes after K
-            c = c.reshape((c.shape[0],) + (1,) * extra + c.shape[1:])
-        return c
-    lo, hi = tab[0], tab[1]
-    if extra > 0:
-        shp = (lo.shape[0],) + (1,) * extra + lo.shape[1:]
-        lo, hi = lo.reshape(shp), hi.reshape(shp)
-    return np.where(r, lo, hi)
 
 
 def _virial(T: FloatArray, p: FloatArray, rows: Sequence[int]) -> list[FloatArray]:
@@ -303,13 +307,14 @@ class Mixture:
 
     M: FloatArray
     R: FloatArray
-    y: FloatArray
-    _h_tab: FloatArray = field(repr=False)  # (2, 6, ...) J/kg polynomial of T, sensible
-    _cp_tab: FloatArray = field(repr=False)  # (2, 5, ...)
-    _s_tab: FloatArray = field(repr=False)  # (2, 6, ...)
+    _idx: NDArray[np.intp] = field(repr=False)  # species present somewhere in the batch
+    _yk: FloatArray = field(repr=False)  # mass fractions of those species (..., k)
     _s_mix: FloatArray = field(repr=False)  # -R sum x ln x [J/(kg K)]
     _cp_ref: FloatArray = field(repr=False)  # cp(298.15 K)
     _phi_ref: FloatArray = field(repr=False)  # s0(298.15 K)
+    _cache: dict[tuple[int, int], FloatArray] = field(
+        default_factory=dict, repr=False, compare=False
+    )  # coefficient rows per (range, kind), built on first use
 
     # ---- construction ------------------------------------------------------------------
     @classmethod
@@ -322,34 +327,40 @@ class Mixture:
             Wrong last-axis length, negative fractions or a sum off 1 by more than 1e-5.
             Rows containing NaN are accepted and give NaN properties.
         """
-        yy = _check_composition(_f(y), "y")
-        return cls._build(yy)
+        idx, yk = _compact(_f(y), "y")
+        return cls._build(idx, yk, None)
 
     @classmethod
     def from_mole_fractions(cls, x: ArrayLike) -> Mixture:
         """Mixture from mole fractions ``x`` (..., n_species) [-] (same checks as above)."""
-        xx = _check_composition(_f(x), "x")
-        m = xx * MOLAR_MASS
-        return cls._build(m / m.sum(axis=-1, keepdims=True))
+        idx, xk = _compact(_f(x), "x")
+        return cls._build(idx, None, xk)
 
     @classmethod
-    def _build(cls, y: FloatArray) -> Mixture:
-        inv_m = _f(y @ (1.0 / MOLAR_MASS))  # mol/kg
-        M = _f(1.0 / inv_m)
+    def _build(cls, idx: NDArray[np.intp], yk: FloatArray | None, xk: FloatArray | None) -> Mixture:
+        mk = MOLAR_MASS[idx]
+        if yk is not None:
+            inv_m = _f(yk @ (1.0 / mk))  # mol/kg
+            M = _f(1.0 / inv_m)
+            xk = yk * (M[..., None] / mk)
+        else:
+            assert xk is not None
+            M = _f(xk @ mk)
+            inv_m = _f(1.0 / M)
+            yk = xk * (mk / M[..., None])
         R = _f(R_UNIVERSAL * inv_m)
-        h_tab = np.tensordot(_H_TAB, y, axes=([2], [-1]))
-        cp_tab = np.tensordot(_CP_TAB, y, axes=([2], [-1]))
-        s_tab = np.tensordot(_S_TAB, y, axes=([2], [-1]))
-        x = y * (M[..., None] / MOLAR_MASS)
         with np.errstate(divide="ignore", invalid="ignore"):
-            xlnx = np.where(x > 0, x * np.log(np.where(x > 0, x, 1.0)), 0.0)
-        s_mix = _f(-R * xlnx.sum(axis=-1))
-        t = _f(T_REF)
-        cp_ref = _horner(list(cp_tab[0]), t)
-        phi_ref = _horner([0.0, *s_tab[0, 1:5]], t) + s_tab[0, 0] * np.log(t) + s_tab[0, 5]
-        for a in (M, R, y, h_tab, cp_tab, s_tab, s_mix):
+            lx = np.log(xk)
+            lx *= xk
+            lx[xk <= 0.0] = 0.0  # x ln x -> 0
+        s_mix = _f(-R * lx.sum(axis=-1))
+        for a in (M, R, yk, s_mix):
             a.flags.writeable = False
-        return cls(M, R, y, h_tab, cp_tab, s_tab, s_mix, _f(cp_ref), _f(phi_ref))
+        mix = cls(M, R, idx, yk, s_mix, M, M)
+        t = _f(T_REF)
+        object.__setattr__(mix, "_cp_ref", _f(mix._cp_raw(t)))
+        object.__setattr__(mix, "_phi_ref", _f(mix._phi_raw(t)))
+        return mix
 
     # ---- basic attributes ----------------------------------------------------------------
     @property
@@ -358,9 +369,17 @@ class Mixture:
         return tuple(self.M.shape)
 
     @property
+    def y(self) -> FloatArray:
+        """Mass fractions (..., n_species) [-]."""
+        out = np.zeros((*self.shape, N_SPECIES))
+        out[..., self._idx] = self._yk
+        return out
+
+    @property
     def x(self) -> FloatArray:
         """Mole fractions (..., n_species) [-]."""
-        out: FloatArray = self.y * (self.M[..., None] / MOLAR_MASS)
+        out = np.zeros((*self.shape, N_SPECIES))
+        out[..., self._idx] = self._yk * (self.M[..., None] / MOLAR_MASS[self._idx])
         return out
 
     @property
@@ -369,34 +388,59 @@ class Mixture:
         return self._s_mix
 
     # ---- unchecked kernels ----------------------------------------------------------------
-    def _h_raw(self, T: FloatArray) -> FloatArray:
-        return _horner(_pick(self._h_tab, T, self.M.ndim, _range(T)), T)
+    def _rows(self, r: int, rows: slice, T: FloatArray) -> FloatArray:
+        """Coefficient rows of range r, shaped to broadcast against T."""
+        key = (r, rows.start)
+        c = self._cache.get(key)
+        if c is None:
+            w = _ALL_TAB[r * 17 + rows.start : r * 17 + rows.stop][:, self._idx]
+            yk = self._yk
+            c = (w @ yk.reshape(-1, self._idx.size).T).reshape((w.shape[0], *self.shape))
+            c.flags.writeable = False
+            self._cache[key] = c
+        extra = T.ndim - self.M.ndim
+        if extra > 0:  # T has more leading dims than the mixture: unit axes after the rows
+            c = c.reshape((c.shape[0],) + (1,) * extra + c.shape[1:])
+        return c
 
-    def _cp_raw(self, T: FloatArray) -> FloatArray:
-        return _horner(_pick(self._cp_tab, T, self.M.ndim, _range(T)), T)
-
-    def _phi_c(self, c: Any, T: FloatArray) -> FloatArray:
-        out = _horner([0.0, c[1], c[2], c[3], c[4]], T)
-        out += c[0] * np.log(T)
-        out += c[5]
+    def _poly(self, rows: slice, T: FloatArray, r: int | NDArray[np.bool_]) -> FloatArray:
+        if isinstance(r, int):
+            return _horner(self._rows(r, rows, T), T)
+        out: FloatArray = np.where(
+            r, _horner(self._rows(0, rows, T), T), _horner(self._rows(1, rows, T), T)
+        )
         return out
 
+    def _phi(self, T: FloatArray, r: int | NDArray[np.bool_]) -> FloatArray:
+        lnT = np.log(T)
+        parts = []
+        for k in (0, 1) if not isinstance(r, int) else (r,):
+            c = self._rows(k, _S, T)
+            out = _horner([0.0, c[1], c[2], c[3], c[4]], T)
+            out += c[0] * lnT
+            out += c[5]
+            parts.append(out)
+        if isinstance(r, int):
+            return parts[0]
+        res: FloatArray = np.where(r, parts[0], parts[1])
+        return res
+
+    def _h_raw(self, T: FloatArray) -> FloatArray:
+        return self._poly(_H, T, _range(T))
+
+    def _cp_raw(self, T: FloatArray) -> FloatArray:
+        return self._poly(_CP, T, _range(T))
+
     def _phi_raw(self, T: FloatArray) -> FloatArray:
-        return self._phi_c(_pick(self._s_tab, T, self.M.ndim, _range(T)), T)
+        return self._phi(T, _range(T))
 
     def _h_cp_raw(self, T: FloatArray) -> tuple[FloatArray, FloatArray]:
-        r, nd = _range(T), self.M.ndim
-        return (
-            _horner(_pick(self._h_tab, T, nd, r), T),
-            _horner(_pick(self._cp_tab, T, nd, r), T),
-        )
+        r = _range(T)
+        return self._poly(_H, T, r), self._poly(_CP, T, r)
 
     def _phi_cp_raw(self, T: FloatArray) -> tuple[FloatArray, FloatArray]:
-        r, nd = _range(T), self.M.ndim
-        return (
-            self._phi_c(_pick(self._s_tab, T, nd, r), T),
-            _horner(_pick(self._cp_tab, T, nd, r), T),
-        )
+        r = _range(T)
+        return self._phi(T, r), self._poly(_CP, T, r)
 
     @staticmethod
     def _nan_out(out: FloatArray, T: FloatArray) -> FloatArray:
@@ -531,7 +575,12 @@ class Mixture:
         if pa is not None:
             pa = self._check_p(pa, shape, status)
         if T_guess is None:
+            # cp(298.15 K), then the cp at the midpoint of that first estimate
             T = np.broadcast_to(T_REF + hw / self._cp_ref, shape).copy()
+            np.clip(T, 100.0, 5000.0, out=T)
+            Tm = T + T_REF
+            Tm *= 0.5
+            T = np.array(np.broadcast_to(T_REF + hw / self._cp_raw(Tm), shape), dtype=np.float64)
         else:
             T = np.broadcast_to(_f(T_guess), shape).copy()
             gbad = ~np.isfinite(T)
@@ -637,8 +686,11 @@ class Mixture:
         pb = self._check_p(p, shape, status) if real_gas else self._check_p_ideal(p, shape, status)
         phi_t = sw + self.R * np.log(pb / P_REF) - self._s_mix
         if T_guess is None:
+            # cp(298.15 K), then the cp at the geometric mean of that first estimate
             T = np.broadcast_to(T_REF * np.exp((phi_t - self._phi_ref) / self._cp_ref), shape)
-            T = np.array(T, dtype=np.float64)
+            T = np.clip(T, 100.0, 5000.0)
+            T = T_REF * np.exp((phi_t - self._phi_ref) / self._cp_raw(np.sqrt(T * T_REF)))
+            T = np.array(np.broadcast_to(T, shape), dtype=np.float64)
         else:
             T = np.array(np.broadcast_to(_f(T_guess), shape), dtype=np.float64)
             T[~np.isfinite(T)] = 1000.0
@@ -707,7 +759,12 @@ class Mixture:
         if real_gas:
             (sr1,) = _virial(Tb, p1b, (2,))
             phi_t = phi_t + self.R * sr1
-        T = np.array(np.broadcast_to(Tb * np.exp(self.R * lnpr / cp1), shape), dtype=np.float64)
+        # first estimate with cp(T1), then with cp at the geometric mean temperature
+        dlnT = self.R * lnpr
+        T = Tb * np.exp(dlnT / cp1)
+        T = np.clip(T, 100.0, 5000.0)
+        T = Tb * np.exp(dlnT / self._cp_raw(np.sqrt(T * Tb)))
+        T = np.array(np.broadcast_to(T, shape), dtype=np.float64)
         return self._solve_phi(phi_t, T, status, p2b if real_gas else None)
 
     # ---- blending --------------------------------------------------------------------------
