@@ -12,12 +12,14 @@ unreadable input.
 from __future__ import annotations
 
 import argparse
+import io
 import json
 import math
 import sys
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from importlib import resources
+from pathlib import Path
 from typing import IO, Any
 
 import numpy as np
@@ -94,8 +96,18 @@ caution: {CAUTION}
 
 
 def example_path(name: str = DEFAULT_EXAMPLE) -> Any:
-    """The shipped example ``name`` as an :mod:`importlib.resources` traversable."""
-    return resources.files("daemon").joinpath("examples", name)
+    """The shipped example ``name`` (package data) as an :mod:`importlib.resources` traversable.
+
+    >>> example_path().name
+    'kr-gt1-snapshot.json'
+    """
+    try:
+        root: Any = resources.files("daemon")
+    except NotADirectoryError:
+        # Python 3.11 with a setuptools editable install: the package path also holds the
+        # editable finder's hook, which importlib.resources' MultiplexedPath refuses.
+        root = Path(__file__).resolve().parent
+    return root.joinpath("examples", name)
 
 
 # --------------------------------------------------------------------------------------------
@@ -386,8 +398,9 @@ def render_table(
     title_cols = [str(r.id) if r.id is not None else f"record {r.ref.index}" for r in results]
     # Plain text is never wrapped or cut: a file or a pipe gets every digit and every message.
     width = None if terminal else 100_000
+    buffer = io.StringIO()
     console = Console(
-        file=stream,
+        file=stream if terminal else buffer,
         force_terminal=terminal,
         no_color=not terminal,
         width=width,
@@ -434,6 +447,8 @@ def render_table(
         for err in r.errors:
             console.print(f"{t}: error: {err}")
     console.print(CAUTION)
+    if not terminal:
+        stream.write("".join(line.rstrip() + "\n" for line in buffer.getvalue().splitlines()))
 
 
 def _print_fields(unit_type: UnitType, stream: IO[str]) -> None:

@@ -606,7 +606,10 @@ def _convert_error(err: Mapping[str, Any], contract: Contract) -> FieldError:
             msg += f" (got {_type_name(value)})"
         return FieldError(path, msg)
     if kind in ("float_type", "float_parsing", "int_type", "int_from_float"):
-        return FieldError(path, f"must be a number (got {_type_name(value)} {value!r})")
+        shown = _type_name(value)
+        if isinstance(value, str | bool):
+            shown += f" {value!r}"
+        return FieldError(path, f"must be a number (got {shown})")
     if kind == "finite_number":
         return FieldError(path, f"must be a finite number (got {value!r})")
     if kind in ("model_type", "model_attributes_type", "dict_type"):
