@@ -106,8 +106,9 @@ DRY_AIR: Mapping[str, float] = {k: v / _DRY_SUM for k, v in _DRY.items()}
 CASING_LOSS_AT: Literal["combustor", "turbine"] = "combustor"
 
 #: Stations whose states carry the real-gas departure of air when ``real_gas=True``: the
-#: compressor (1, 2, 2s) and/or the turbine (3, 4, 4s), as in ``models.gas_turbine``.
-REAL_GAS_STATIONS: frozenset[str] = frozenset({"compressor"})
+#: compressor (1, 2, 2s) and/or the turbine (3, 4, 4s).  ``models.gas_turbine`` applies the
+#: molar departure of air to every station (combustion gas included), so both.
+REAL_GAS_STATIONS: frozenset[str] = frozenset({"compressor", "turbine"})
 
 # our species names (models.species spelling) -> name in each Cantera data file
 _NASA_NAMES = {
