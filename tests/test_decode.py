@@ -397,7 +397,7 @@ json_values = st.recursive(
 )
 keys = st.sampled_from(
     ["TT-CD", "PT-CD", "PT-BARO", "JT-GEN", "TT-XX", "ts", "seq", "quality"]
-) | st.text(max_size=6)
+) | st.text(max_size=6).filter(lambda k: k != "values")  # "values" switches to the nested form
 ts_values = (
     st.none()
     | st.integers(min_value=-(10**16), max_value=10**16)
