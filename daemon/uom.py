@@ -71,6 +71,13 @@ ABSOLUTE_ALIASES: dict[str, str] = {
     "psia": "psi",
 }
 
+#: Other plant spellings pint does not know.  Water columns at 39.2 °F are water at its
+#: density maximum (4 °C), as NIST SP 811 names them.
+OTHER_ALIASES: dict[str, str] = {
+    "inH2O_39F": "inH2O_4C",
+    "inH2O_39.2F": "inH2O_4C",
+}
+
 #: Dimensionless spellings for humidity and fractions.
 RATIO_ALIASES: dict[str, str] = {
     "%RH": "percent",
@@ -191,6 +198,8 @@ def parse_uom(uom: str) -> ParsedUom:
         return ParsedUom(text, ABSOLUTE_ALIASES[text], gauge=False)
     if text in RATIO_ALIASES:
         return ParsedUom(text, RATIO_ALIASES[text], gauge=False)
+    if text in OTHER_ALIASES:
+        return ParsedUom(text, OTHER_ALIASES[text], gauge=False)
     return ParsedUom(text, text, gauge=False)
 
 
@@ -206,9 +215,11 @@ def suggested_uoms(target: str | None = None) -> tuple[str, ...]:
 
 def _fix_list(uom: str, target: str | None) -> str:
     options = suggested_uoms(target)
+    same_case = [o for o in options if o.lower() == uom.lower()]
     close = difflib.get_close_matches(uom, options, n=3, cutoff=0.5)
-    ordered = list(dict.fromkeys([*close, *options]))
-    return "use one of " + ", ".join(ordered)
+    ordered = list(dict.fromkeys([*same_case, *close, *options]))
+    hint = f" (did you mean {same_case[0]!r}? units are case-sensitive)" if same_case else ""
+    return "use one of " + ", ".join(ordered) + hint
 
 
 @dataclass(frozen=True, slots=True)
