@@ -258,7 +258,7 @@ def _check_composition(z: FloatArray, name: str) -> FloatArray:
 def _range(T: FloatArray) -> int | NDArray[np.bool_]:
     """0 if every T is in the low range, 1 if every T is in the high range, else the mask."""
     with np.errstate(invalid="ignore"):
-        low = T < _T_MID
+        low = T <= _T_MID
     if low.all():
         return 0
     if not low.any():
@@ -525,12 +525,13 @@ class Mixture:
     def _finish(
         self, T: FloatArray, done: NDArray[np.bool_], status: StatusArray
     ) -> tuple[FloatArray, StatusArray]:
-        nc = ~done & (status == 0)
-        status[nc] |= np.uint32(Reason.NOT_CONVERGED)
         # a root on the boundary may land a rounding error outside: accept within 1e-6 K
         T = np.clip(T, T_MIN, T_MAX, out=T, where=np.abs(T - np.clip(T, T_MIN, T_MAX)) < _T_TOL)
+        # an iterate outside the range means the root is outside (h and φ increase with T)
         oor = _t_out_of_range(T) & (status == 0)
         status[oor] |= np.uint32(Reason.TEMPERATURE_OUT_OF_RANGE)
+        nc = ~done & (status == 0)
+        status[nc] |= np.uint32(Reason.NOT_CONVERGED)
         bad = status != 0
         if bad.any():
             T = np.where(bad, np.nan, T)
@@ -872,7 +873,7 @@ def saturation_pressure(T: ArrayLike) -> FloatArray:
         ln(p/p_t) = θ⁻¹ Σ a_i θ^(b_i)
     """
     T = _f(T)
-    with np.errstate(invalid="ignore", divide="ignore"):
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
         v = 1.0 - T / _TC
         a = _WP_A
         liq = _PC * np.exp(
