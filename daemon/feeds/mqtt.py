@@ -67,7 +67,7 @@ __all__ = [
 log = logging.getLogger("brayscope.feeds.mqtt")
 
 
-class MqttFeedError(RuntimeError):
+class MqttFeedError(ValueError):
     """The feed was misconfigured (caller error); connection problems are retried, not raised."""
 
 
@@ -425,7 +425,9 @@ class MqttFeed:
             identifier=b.client_id,
             protocol=aiomqtt.ProtocolVersion.V5 if self._v5 else aiomqtt.ProtocolVersion.V311,
             clean_session=None if self._v5 else False,
-            clean_start=False,
+            # MQTT 5: never clean (resume the session); 3.1.1 takes clean_session instead and
+            # paho refuses any clean_start other than its default there
+            clean_start=False if self._v5 else paho.MQTT_CLEAN_START_FIRST_ONLY,
             keepalive=int(b.keepalive_s),
             properties=props,
             tls_context=self._tls,
