@@ -20,6 +20,7 @@ COMMANDS: dict[str, str] = {
     "check": "daemon.check_cmd",
     "db": "daemon.db_cmd",
     "bench": "daemon.bench",
+    "run": "daemon.run_cmd",
 }
 
 CAUTION = (
