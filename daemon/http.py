@@ -250,13 +250,17 @@ def create_app(
         )
 
     async def need_read(
-        cred: Annotated[HTTPAuthorizationCredentials | None, Depends(bearer)],
+        # a default, not Annotated: the closure's ``bearer`` is not visible to the
+        # string annotations FastAPI resolves under ``from __future__ import annotations``
+        cred: HTTPAuthorizationCredentials | None = Depends(bearer),  # noqa: B008
     ) -> None:
         if any_token and _who(cred) is None:
             raise _unauth()
 
     async def need_write(
-        cred: Annotated[HTTPAuthorizationCredentials | None, Depends(bearer)],
+        # a default, not Annotated: the closure's ``bearer`` is not visible to the
+        # string annotations FastAPI resolves under ``from __future__ import annotations``
+        cred: HTTPAuthorizationCredentials | None = Depends(bearer),  # noqa: B008
     ) -> None:
         who = _who(cred)
         if api_token is None:
