@@ -21,6 +21,7 @@ from __future__ import annotations
 import json
 import math
 import re
+import threading
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
@@ -56,6 +57,7 @@ _SCHEMA_RE = re.compile(r"^[a-z_][a-z0-9_]{0,62}$")
 _MIGRATIONS = Path(__file__).resolve().parent.parent / "migrations"
 #: Key of the PostgreSQL advisory lock held while migrating (replicas start together).
 _MIGRATION_LOCK_KEY = 0x62726179  # "bray"
+_MIGRATION_THREAD_LOCK = threading.Lock()
 
 
 class ReadingLike(Protocol):
@@ -239,7 +241,9 @@ class Store:
 
         cfg = Config()
         cfg.set_main_option("script_location", str(_MIGRATIONS))
-        cfg.set_main_option("sqlalchemy.url", self.url.render_as_string(hide_password=False))
+        if connection is None:  # env.py opens its own connection from the URL
+            url = self.url.render_as_string(hide_password=False)
+            cfg.set_main_option("sqlalchemy.url", url.replace("%", "%%"))
         cfg.attributes["connection"] = connection
         return cfg
 
@@ -248,7 +252,12 @@ class Store:
         on PostgreSQL, which serialise on an advisory lock)."""
         from alembic import command
 
-        with self.engine.begin() as conn:
+        # alembic's context/op proxies are process-global: one migration at a time per process
+        with _MIGRATION_THREAD_LOCK, self.engine.begin() as conn:
+            if self.dialect == "sqlite":
+                # take the write lock first: with the sqlite3 module DDL starts no transaction
+                # by itself, and replicas starting together must not race on CREATE TABLE
+                conn.exec_driver_sql("BEGIN IMMEDIATE")
             if self.dialect == "postgresql":
                 conn.execute(
                     sa.text("SELECT pg_advisory_xact_lock(:k)"), {"k": _MIGRATION_LOCK_KEY}
@@ -407,6 +416,8 @@ class Store:
                 "reason": q.reason,
                 "detail": (q.detail or "")[:MAX_DETAIL_CHARS],
                 "unit": q.unit,
+                "measurement": getattr(q, "measurement", None),
+                "source_ts": _optional_ts(getattr(q, "source_ts", None)),
             }
             for q in items
         ]
@@ -520,6 +531,10 @@ class Store:
                         conn.execute(table.delete().where(col < cutoff)).rowcount
                     )
         return counts
+
+
+def _optional_ts(ts: float | datetime | None) -> datetime | None:
+    return None if ts is None else s.to_utc_datetime(ts)
 
 
 def _raw_text(raw: object) -> str | None:

@@ -20,10 +20,56 @@ branch_labels = None
 depends_on = None
 
 #: KPI columns of ``results`` (result names of the gas_turbine unit type).
-RESULT_VALUES: tuple[str, ...] = ()
+RESULT_VALUES: tuple[str, ...] = (
+    "compressor_pressure_ratio",
+    "compressor_isentropic_efficiency",
+    "compressor_polytropic_efficiency",
+    "compressor_specific_work",
+    "compressor_power",
+    "compressor_isentropic_discharge_temperature",
+    "air_mass_flow",
+    "heat_balance_air_mass_flow",
+    "fuel_air_ratio",
+    "exhaust_mass_flow",
+    "turbine_inlet_temperature",
+    "turbine_inlet_pressure",
+    "turbine_isentropic_efficiency",
+    "turbine_isentropic_exhaust_temperature",
+    "turbine_power",
+    "shaft_power",
+    "heat_input",
+    "heat_rate_kJ_per_kWh",
+    "heat_rate_hhv_kJ_per_kWh",
+    "thermal_efficiency",
+    "back_work_ratio",
+    "ideal_brayton_efficiency",
+    "ideal_cycle_efficiency",
+    "carnot_efficiency",
+    "corrected_power",
+    "corrected_heat_rate_kJ_per_kWh",
+    "corrected_power_model",
+    "corrected_heat_rate_model_kJ_per_kWh",
+    "corrected_power_curve",
+    "corrected_heat_rate_curve_kJ_per_kWh",
+    "heat_balance_closure",
+)
 
 #: Input-measurement columns of ``results``, stored as ``in_<name>``.
-RESULT_INPUTS: tuple[str, ...] = ()
+RESULT_INPUTS: tuple[str, ...] = (
+    "ambient_temperature",
+    "ambient_pressure",
+    "ambient_relative_humidity",
+    "compressor_inlet_temperature",
+    "compressor_inlet_pressure",
+    "compressor_discharge_temperature",
+    "compressor_discharge_pressure",
+    "exhaust_temperature",
+    "exhaust_pressure",
+    "fuel_mass_flow",
+    "generator_power",
+    "air_mass_flow",
+    "fuel_temperature",
+)
 
 
 def _id() -> sa.Column[int]:
@@ -87,6 +133,8 @@ def upgrade() -> None:
         sa.Column("reason", sa.String(32), nullable=False),
         sa.Column("detail", sa.Text(), nullable=False, server_default=""),
         sa.Column("unit", sa.String(64), nullable=True),
+        sa.Column("measurement", sa.String(64), nullable=True),
+        sa.Column("source_ts", ts, nullable=True),
         sa.PrimaryKeyConstraint("id", name="pk_quarantine"),
     )
     op.create_index("ix_quarantine_received_at", "quarantine", ["received_at"])

@@ -1,0 +1,332 @@
+"""daemon.storage against real databases: SQLite files and PostgreSQL (fixture ``store_url``).
+
+What is checked, and why (facts of the trade, common practice):
+* migrations run from an empty database and leave exactly the tables of
+  ``daemon.storage.schema`` (Alembic's own autogenerate comparison finds no difference);
+* QoS-1 delivery is at-least-once (MQTT 3.1.1 §4.3.2, MQTT 5.0 §4.3.2), so every write keyed by
+  (unit, ts[, measurement]) must be idempotent: writing the same rows twice changes nothing;
+* SQLite WAL with synchronous=NORMAL (SQLite documentation, "Write-Ahead Logging" and
+  "PRAGMA synchronous") is what makes a committed write survive a process kill.
+"""
+
+from __future__ import annotations
+
+import math
+import random
+import subprocess
+import sys
+from datetime import UTC, datetime, timedelta
+
+import pytest
+import sqlalchemy as sa
+from alembic.autogenerate import compare_metadata
+from alembic.runtime.migration import MigrationContext
+
+from daemon.storage import MAX_QUARANTINE_PAYLOAD, ResultRow, Store, redact_url, schema
+from daemon.types import Quarantined, Reading
+
+T0 = datetime(2026, 6, 1, 12, 0, tzinfo=UTC).timestamp()
+
+
+@pytest.fixture
+def store(store_url: str) -> Store:
+    st = Store(store_url)
+    st.upgrade()
+    st.ensure_unit("KR-GT1", "gas_turbine", "45 MW class")
+    st.ensure_unit("KR-GT3", "gas_turbine", "12 MW class")
+    yield st
+    st.close()
+
+
+def _readings(n: int, unit: str = "KR-GT1", t0: float = T0) -> list[Reading]:
+    names = ("ambient_temperature", "compressor_discharge_pressure", "generator_power")
+    return [
+        Reading(
+            unit=unit,
+            measurement=names[i % len(names)],
+            value=288.15 + i,
+            source_ts=t0 + (i // len(names)) * 1.0,
+            received_ts=t0 + (i // len(names)) * 1.0 + 0.05,
+            quality="good",
+            topic=f"kestrel/gt1/{names[i % len(names)]}",
+            raw_value=15.0 + i,
+            raw_uom="degC",
+        )
+        for i in range(n)
+    ]
+
+
+# ----------------------------------------------------------------------------------------------
+# Migrations
+# ----------------------------------------------------------------------------------------------
+
+
+def test_migrations_from_empty_match_the_schema(store_url: str) -> None:
+    st = Store(store_url)
+    try:
+        assert st.current_revision() is None
+        st.upgrade()
+        assert st.current_revision() == st.head_revision() == "0001"
+        with st.engine.connect() as conn:
+            tables = set(sa.inspect(conn).get_table_names())
+            assert {"units", "results", "readings", "quarantine", "events"} <= tables
+            diff = compare_metadata(
+                MigrationContext.configure(conn, opts={"compare_type": True}), schema.metadata
+            )
+        assert diff == []
+        st.upgrade()  # a second run is a no-op
+        assert st.current_revision() == "0001"
+    finally:
+        st.close()
+
+
+def test_parallel_upgrades_do_not_collide(store_url: str) -> None:
+    # Replicas of a fleet start together, each its own process: on PostgreSQL an advisory
+    # lock serialises their migrations, on SQLite the write lock (BEGIN IMMEDIATE) does.
+    code = "import sys; from daemon.storage import Store; Store(sys.argv[1]).upgrade()"
+    procs = [
+        subprocess.Popen([sys.executable, "-c", code, store_url], stderr=subprocess.PIPE)
+        for _ in range(4)
+    ]
+    errors = [p.communicate(timeout=120)[1].decode() for p in procs]
+    assert [p.returncode for p in procs] == [0, 0, 0, 0], errors
+    st = Store(store_url)
+    try:
+        assert st.current_revision() == "0001"
+    finally:
+        st.close()
+
+
+def test_result_columns_cover_every_result_of_every_builtin_unit_type() -> None:
+    # A new result of a unit type must come with a migration: this fails until it does.
+    from models.unit_types import builtin_unit_types
+
+    columns = set(schema.results.c.keys())
+    for unit_type in builtin_unit_types().values():
+        missing = [r.name for r in unit_type.results if r.name not in columns]
+        assert missing == [], f"{unit_type.name}: results without a column: {missing}"
+        inputs = {
+            c[len(schema.INPUT_PREFIX) :] for c in columns if c.startswith(schema.INPUT_PREFIX)
+        }
+        missing_in = [m.name for m in unit_type.measurements if m.name not in inputs]
+        assert missing_in == [], f"{unit_type.name}: measurements without a column: {missing_in}"
+
+
+def test_migration_lists_the_same_result_columns_as_the_schema() -> None:
+    import importlib.util
+    from pathlib import Path
+
+    import daemon
+
+    path = Path(daemon.__file__).parent / "migrations" / "versions" / "0001_initial.py"
+    spec = importlib.util.spec_from_file_location("brayscope_migration_0001", path)
+    assert spec is not None and spec.loader is not None
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    assert tuple(mod.RESULT_VALUES) == schema.RESULT_VALUE_COLUMNS
+    assert tuple(mod.RESULT_INPUTS) == schema.RESULT_INPUT_COLUMNS
+
+
+# ----------------------------------------------------------------------------------------------
+# Idempotent writes
+# ----------------------------------------------------------------------------------------------
+
+
+def test_readings_are_idempotent(store: Store) -> None:
+    rows = _readings(3000)
+    assert store.write_readings(rows) == 3000
+    assert store.count("readings") == 3000
+    assert store.write_readings(rows) == 0  # replay
+    shuffled = rows[:]
+    random.Random(7).shuffle(shuffled)
+    assert store.write_readings([*shuffled[:500], *_readings(30, t0=T0 + 10_000)]) == 30
+    assert store.count("readings") == 3030
+
+
+def test_reading_round_trip_keeps_values_and_utc(store: Store) -> None:
+    r = _readings(1)[0]
+    store.write_readings([r])
+    (row,) = store.readings_between("KR-GT1", T0 - 1, T0 + 1)
+    assert row["value"] == r.value
+    assert row["source_ts"] == datetime.fromtimestamp(r.source_ts, UTC)
+    assert row["source_ts"].tzinfo is not None and row["source_ts"].utcoffset() == timedelta(0)
+    assert row["raw_value"] == "15.0" and row["raw_uom"] == "degC" and row["quality"] == "good"
+
+
+def _result(ts: float, unit: str = "KR-GT1", **values: float) -> ResultRow:
+    names = schema.RESULT_VALUE_COLUMNS
+    vals = {n: 0.5 + i for i, n in enumerate(names)}
+    vals.update(values)
+    inputs = {n: 100.0 + i for i, n in enumerate(schema.RESULT_INPUT_COLUMNS)}
+    return ResultRow(
+        unit=unit,
+        ts=ts,
+        values=vals,
+        inputs=inputs,
+        status=1 << 13,
+        reasons="not_steady",
+        steady=False,
+        r_statistic=2.7,
+        air_mass_flow_source="heat_balance",
+        correction_method="model",
+    )
+
+
+def test_results_are_idempotent_on_unit_and_ts(store: Store) -> None:
+    rows = [_result(T0 + 10 * i) for i in range(50)] + [_result(T0, unit="KR-GT3")]
+    assert store.write_results(rows) == 51
+    assert store.write_results(rows) == 0
+    assert store.write_results([*rows[::-1][:10], _result(T0 + 10_000)]) == 1
+    assert store.count("results") == 52
+
+
+def test_result_round_trip(store: Store) -> None:
+    store.write_results([_result(T0), _result(T0 + 10), _result(T0 + 20)])
+    latest = store.latest_results("KR-GT1", 2)
+    assert [r["ts"] for r in latest] == [
+        datetime.fromtimestamp(T0 + 20, UTC),
+        datetime.fromtimestamp(T0 + 10, UTC),
+    ]
+    row = latest[0]
+    assert row["status"] == 1 << 13 and row["reasons"] == "not_steady"
+    assert row["steady"] is False and row["r_statistic"] == 2.7
+    assert row["air_mass_flow_source"] == "heat_balance" and row["correction_method"] == "model"
+    for i, name in enumerate(schema.RESULT_VALUE_COLUMNS):
+        assert row[name] == 0.5 + i
+    for i, name in enumerate(schema.RESULT_INPUT_COLUMNS):
+        assert row[schema.INPUT_PREFIX + name] == 100.0 + i
+    between = store.results_between("KR-GT1", T0, T0 + 20)
+    assert [r["ts"].timestamp() for r in between] == [T0, T0 + 10]  # half-open interval
+
+
+def test_nan_results_are_stored_as_null(store: Store) -> None:
+    if not schema.RESULT_VALUE_COLUMNS:
+        pytest.skip("no result columns in the schema yet")
+    name = schema.RESULT_VALUE_COLUMNS[0]
+    store.write_results([_result(T0, **{name: math.nan})])
+    assert store.latest_results("KR-GT1")[0][name] is None
+
+
+def test_unknown_result_name_needs_a_migration(store: Store) -> None:
+    with pytest.raises(ValueError, match="needs a schema migration"):
+        store.write_results([ResultRow("KR-GT1", T0, values={"flux_capacitance": 1.0})])
+    assert store.count("results") == 0
+
+
+def test_readings_of_an_unknown_unit_are_refused(store: Store) -> None:
+    # foreign keys are on (PostgreSQL always; SQLite by our connect pragma)
+    with pytest.raises(sa.exc.IntegrityError):
+        store.write_readings(_readings(1, unit="KR-GT9"))
+    assert store.count("readings") == 0
+
+
+# ----------------------------------------------------------------------------------------------
+# Quarantine, events, units
+# ----------------------------------------------------------------------------------------------
+
+
+def test_quarantine_round_trip_with_binary_payload(store: Store) -> None:
+    binary = bytes(range(256)) * 40  # every byte value, incl. NUL and invalid UTF-8
+    items = [
+        Quarantined(
+            T0,
+            "kestrel/gt1/TT-AMB",
+            b'{"v": NaN}',
+            "non_finite",
+            "NaN in v",
+            "KR-GT1",
+            "ambient_temperature",
+            T0 - 1.0,
+        ),
+        Quarantined(T0 + 1, "kestrel/unknown", binary, "oversized_payload", "10240 bytes", None),
+    ]
+    assert store.write_quarantine(items) == 2
+    newest, oldest = store.quarantine_rows(10)
+    assert oldest["payload"] == b'{"v": NaN}' and oldest["reason"] == "non_finite"
+    assert oldest["unit"] == "KR-GT1" and oldest["measurement"] == "ambient_temperature"
+    assert oldest["source_ts"] == datetime.fromtimestamp(T0 - 1.0, UTC)
+    assert newest["payload"] == binary[:MAX_QUARANTINE_PAYLOAD]
+    assert newest["unit"] is None and newest["topic"] == "kestrel/unknown"
+    assert newest["received_at"] == datetime.fromtimestamp(T0 + 1, UTC)
+
+
+def test_events_and_unit_upsert(store: Store) -> None:
+    store.write_event("start", "brayscope 0.1.0", ts=T0)
+    assert store.count("events") == 1
+
+    class Unit:
+        type = "gas_turbine"
+        description = "Heavy-duty single-shaft unit, 45 MW class (re-rated)"
+
+        def model_dump_json(self, **kwargs: object) -> str:
+            return '{"type": "gas_turbine"}'
+
+    store.upsert_units({"KR-GT1": Unit(), "KR-GT2": Unit()})
+    with store.engine.connect() as conn:
+        rows = dict(conn.execute(sa.select(schema.units.c.name, schema.units.c.description)).all())
+    assert rows["KR-GT1"].endswith("(re-rated)") and "KR-GT2" in rows and "KR-GT3" in rows
+
+
+# ----------------------------------------------------------------------------------------------
+# Retention
+# ----------------------------------------------------------------------------------------------
+
+
+def test_purge_deletes_only_older_rows(store: Store) -> None:
+    day = 86400.0
+    store.write_readings(_readings(30, t0=T0 - 10 * day) + _readings(30, t0=T0))
+    store.write_results([_result(T0 - 10 * day), _result(T0)])
+    store.write_quarantine([Quarantined(T0 - 10 * day, "x", b"x", "malformed_json", "", None)])
+    store.write_event("old", ts=T0 - 10 * day)
+    store.write_event("new", ts=T0)
+    cutoff = T0 - day
+    dry = store.purge_older_than(cutoff, dry_run=True)
+    assert dry == {"results": 1, "readings": 30, "quarantine": 1, "events": 1}
+    assert store.count("readings") == 60
+    assert store.purge_older_than(cutoff) == dry
+    assert store.count("readings") == 30 and store.count("results") == 1
+    assert store.count("quarantine") == 0 and store.count("events") == 1
+    assert store.purge_older_than(cutoff) == {
+        "results": 0,
+        "readings": 0,
+        "quarantine": 0,
+        "events": 0,
+    }
+
+
+# ----------------------------------------------------------------------------------------------
+# Backend settings
+# ----------------------------------------------------------------------------------------------
+
+
+def test_sqlite_connection_pragmas(tmp_path) -> None:
+    st = Store(f"sqlite:///{tmp_path}/sub/dir/b.sqlite")  # parent directories are created
+    try:
+        with st.engine.connect() as conn:
+            assert conn.exec_driver_sql("PRAGMA journal_mode").scalar() == "wal"
+            assert conn.exec_driver_sql("PRAGMA synchronous").scalar() == 1  # NORMAL
+            assert conn.exec_driver_sql("PRAGMA foreign_keys").scalar() == 1
+            assert conn.exec_driver_sql("PRAGMA busy_timeout").scalar() == 10_000
+    finally:
+        st.close()
+
+
+def test_ping(store: Store, tmp_path) -> None:
+    assert store.ping() is True
+    dead = Store("postgresql+psycopg://nobody@127.0.0.1:1/none", connect_timeout_s=1)
+    try:
+        assert dead.ping() is False
+    finally:
+        dead.close()
+
+
+def test_urls_are_redacted_and_checked() -> None:
+    assert "s3cret" not in redact_url("postgresql+psycopg://bray:s3cret@db/brayscope")
+    assert "***" in redact_url("postgresql+psycopg://bray:s3cret@db/brayscope")
+    st = Store("postgresql+psycopg://bray:s3cret@db/brayscope")
+    assert "s3cret" not in repr(st)
+    st.close()
+    with pytest.raises(ValueError, match="psycopg 3"):
+        Store("postgresql+asyncpg://bray@db/brayscope")
+    with pytest.raises(ValueError, match="unsupported database"):
+        Store("mysql+pymysql://bray@db/brayscope")
