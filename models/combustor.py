@@ -1,0 +1,176 @@
+"""Combustor: exhaust-gas composition, turbine inlet temperature by heat balance, pressure loss.
+
+Per kg of air, with fuel-air ratio ``f = m_f / m_a`` and complete combustion::
+
+    y_g   = (y_a + f * product_delta) / (1 + f)                                   (1)
+    h_a(T2, p2) + f (h_f + (eta_b - c_loss) LHV) = (1 + f) h_g(T3, p3)            (2)
+    p3    = p2 (1 - dp_comb)                                                      (3)
+
+``product_delta`` is the fuel's species change per kg burnt (:class:`models.fuel.FuelProperties`),
+h are sensible enthalpies relative to 298.15 K (the LHV reference), with the real-gas departure
+at p2 and p3.  ``c_loss`` is the casing heat loss as a fraction of the heat input, lumped at the
+combustor.  T3 is the mixed-mean heat-balance temperature: with cooling air mixed in upstream
+of the first rotor it is the ISO 2314-style reference turbine inlet temperature, lower than
+the true firing temperature.
+
+References
+----------
+.. [1] ISO 2314:2009, Gas turbines — Acceptance tests, Annex on the reference turbine inlet
+   temperature by heat balance.
+.. [2] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen et al., *Gas Turbine Theory*,
+   7th ed., Pearson, 2017, section 2.3 (combustion temperature rise, fuel-air ratio).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from models import gas
+from models.fuel import FuelProperties
+from models.species import INDEX
+from models.status import Reason
+
+__all__ = [
+    "CombustorState",
+    "combustor",
+    "exhaust_mixture",
+    "stoichiometric_fuel_air_ratio",
+    "turbine_inlet_pressure",
+]
+
+FloatArray = NDArray[np.float64]
+StatusArray = NDArray[np.uint32]
+
+
+def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
+    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
+
+
+def stoichiometric_fuel_air_ratio(air: gas.Mixture, fuel: FuelProperties) -> FloatArray:
+    """Stoichiometric fuel-air ratio [kg fuel / kg air] of ``fuel`` in the (humid) air ``air``."""
+    y_o2 = air.y[..., INDEX["O2"]]
+    return np.asarray(y_o2 / -fuel.product_delta[..., INDEX["O2"]], dtype=np.float64)
+
+
+def exhaust_mixture(air: gas.Mixture, fuel: FuelProperties, f: ArrayLike) -> gas.Mixture:
+    """Exhaust gas of complete combustion at fuel-air ratio f, eq. (1).
+
+    Parameters
+    ----------
+    air : models.gas.Mixture
+        Combustion air.
+    fuel : FuelProperties
+    f : array_like
+        Fuel-air ratio [1], 0 <= f < stoichiometric (lean).  Elements outside give NaN rows.
+
+    Returns
+    -------
+    models.gas.Mixture
+    """
+    fa = np.asarray(f, dtype=np.float64)
+    f_st = stoichiometric_fuel_air_ratio(air, fuel)
+    ok = (fa >= 0) & (fa < f_st)
+    fs = np.where(ok, fa, np.nan)
+    y = (air.y + fs[..., None] * fuel.product_delta) / (1.0 + fs[..., None])
+    return gas.Mixture.from_mass_fractions(np.clip(y, 0.0, None))
+
+
+def turbine_inlet_pressure(p2: ArrayLike, combustor_pressure_loss: ArrayLike) -> FloatArray:
+    """p3 = p2 (1 - dp_comb) [Pa], eq. (3); ``combustor_pressure_loss`` is a fraction of p2."""
+    return np.asarray(
+        np.asarray(p2, dtype=np.float64) * (1.0 - np.asarray(combustor_pressure_loss)),
+        dtype=np.float64,
+    )
+
+
+@dataclass(frozen=True)
+class CombustorState:
+    """Result of :func:`combustor`.
+
+    Attributes
+    ----------
+    fuel_air_ratio : f [1]
+    exhaust : models.gas.Mixture  exhaust-gas composition
+    T3 : turbine inlet temperature [K]
+    p3 : turbine inlet pressure [Pa]
+    h3 : exhaust-gas enthalpy at station 3 [J/kg gas] (sensible, real gas)
+    status : Reason bits
+    """
+
+    fuel_air_ratio: FloatArray
+    exhaust: gas.Mixture
+    T3: FloatArray
+    p3: FloatArray
+    h3: FloatArray
+    status: StatusArray
+
+
+def combustor(
+    air: gas.Mixture,
+    fuel: FuelProperties,
+    T2: ArrayLike,
+    p2: ArrayLike,
+    fuel_air_ratio: ArrayLike,
+    *,
+    fuel_enthalpy: ArrayLike = 0.0,
+    combustion_efficiency: ArrayLike = 0.995,
+    casing_heat_loss_fraction: ArrayLike = 0.0,
+    combustor_pressure_loss: ArrayLike = 0.04,
+) -> CombustorState:
+    """Turbine inlet state by the combustor heat balance, eq. (2).
+
+    Parameters
+    ----------
+    air : models.gas.Mixture
+        Combustion air (humid air at the compressor discharge).
+    fuel : FuelProperties
+    T2, p2 : array_like
+        Compressor discharge temperature [K] and pressure [Pa].
+    fuel_air_ratio : array_like
+        f = m_f / m_a [1].
+    fuel_enthalpy : array_like, optional
+        Sensible enthalpy of the fuel as supplied, h_f [J/kg] (default 0: fuel at 25 °C).
+    combustion_efficiency : array_like, optional
+        eta_b [1] (default 0.995).
+    casing_heat_loss_fraction : array_like, optional
+        c_loss [1 of m_f LHV] (default 0).
+    combustor_pressure_loss : array_like, optional
+        dp_comb / p2 [1] (default 0.04).
+
+    Returns
+    -------
+    CombustorState
+
+    Notes
+    -----
+    Solved for T3 by Newton (:meth:`models.gas.Mixture.T_from_h` with the real-gas departure
+    at p3).  NaN + ENERGY_BALANCE_INFEASIBLE where f is not lean-positive.
+    """
+    T2a = np.asarray(T2, dtype=np.float64)
+    p2a = np.asarray(p2, dtype=np.float64)
+    f = np.asarray(fuel_air_ratio, dtype=np.float64)
+    shape = np.broadcast(T2a, p2a, f, fuel.lhv, air.M).shape
+    status = np.zeros(shape, dtype=np.uint32)
+    f_st = stoichiometric_fuel_air_ratio(air, fuel)
+    infeasible = ~((f > 0) & (f < f_st))
+    _flag(status, np.broadcast_to(infeasible, shape), Reason.ENERGY_BALANCE_INFEASIBLE)
+    g = exhaust_mixture(air, fuel, f)
+    p3 = turbine_inlet_pressure(p2a, combustor_pressure_loss)
+    q = np.asarray(fuel_enthalpy) + (
+        np.asarray(combustion_efficiency) - np.asarray(casing_heat_loss_fraction)
+    ) * np.asarray(fuel.lhv)
+    h3 = (air.h_real(T2a, p2a) + f * q) / (1.0 + f)
+    T3, st = g.T_from_h(h3, T_guess=np.full(shape, 1400.0), p=p3)
+    status |= st
+    bad = status != 0
+    return CombustorState(
+        fuel_air_ratio=np.where(bad, np.nan, f),
+        exhaust=g,
+        T3=np.where(bad, np.nan, T3),
+        p3=np.broadcast_to(p3, shape).copy(),
+        h3=np.where(bad, np.nan, h3),
+        status=status,
+    )
