@@ -1096,12 +1096,11 @@ def _inverse_or_none(conv: Converter, value_si: float, baro: float) -> float | N
 
 
 def _fuel_fix(name: str) -> str:
-    if "composition" in name or name in ("species", "component"):
-        return (
-            "use mole fractions of known species (CH4, C2H6, C3H8, n-C4H10, N2, CO2 ...) "
-            "summing to 1"
-        )
-    return "check the value against the fuel analysis (J/kg for heating values, fractions 0..1)"
+    return (
+        f"check {name}: a gas needs mole fractions of known species (CH4, C2H6, C3H8, "
+        "n-C4H10, N2, CO2 ...) that sum to 1; a liquid needs its LHV in J/kg and mass "
+        "fractions within 0..1"
+    )
 
 
 def _secret_env_name(path: str, key: str) -> str:
