@@ -38,7 +38,9 @@ Checks, in this order per value: type (a JSON number; ``true``/``false`` are not
 finite → timestamp (parsable, within ``future_tolerance_s`` / ``past_tolerance_s`` of the
 receive time) → quality (bad is rejected) → conversion to SI (``conversion_error``) → physically
 possible in SI (T ≤ 0 K, p ≤ 0 Pa, negative mass flow → ``nonphysical``) → plausible range
-``[low, high]`` of the tag, in the tag's own unit (``out_of_range``).
+``[low, high]`` of the tag, in the tag's own unit (``out_of_range``) → the unit type's
+physically possible range of the measurement in SI (``nonphysical``; the plant-file check
+normally keeps tag ranges inside it, so this is a backstop).
 
 The only state a :class:`Decoder` keeps is the latest accepted barometric pressure per unit
 (for gauge-pressure tags); :class:`SequenceTracker` keeps the last sequence number per stream.
@@ -376,13 +378,17 @@ def _measurement_specs(unit: Any) -> dict[str, Any]:
     return {f.name: f for f in getattr(ut, "measurements", ())}
 
 
-def _nonphysical(route: TagRoute, x: float) -> str | None:
-    si_unit = route.si_unit
+def _outside_schema(route: TagRoute, x: float) -> str | None:
     if not route.phys_low <= x <= route.phys_high:
         return (
-            f"{x:.6g} {si_unit or 'SI'} outside the physically possible range "
+            f"{x:.6g} {route.si_unit or 'SI'} outside the physically possible range "
             f"[{route.phys_low:g}, {route.phys_high:g}] of {route.measurement}"
         )
+    return None
+
+
+def _nonphysical(route: TagRoute, x: float) -> str | None:
+    si_unit = route.si_unit
     if si_unit == "K" and x <= 0.0:
         return f"absolute temperature {x:.6g} K is not above 0 K"
     if si_unit == "Pa" and x <= 0.0:
@@ -694,6 +700,9 @@ class Decoder:
                     "out_of_range",
                     f"{x!r} {tag.uom} outside the plausible range [{tag.low:g}, {tag.high:g}]",
                 )
+            why = _outside_schema(route, si)
+            if why is not None:  # only when the tag range is wider than the schema allows
+                raise _Reject("nonphysical", f"{x!r} {tag.uom}: {why}")
         except _Reject as exc:
             return Quarantined(
                 received_ts=received_ts,
