@@ -20,6 +20,7 @@ COMMANDS: dict[str, str] = {
     "check": "daemon.check_cmd",
     "db": "daemon.db_cmd",
     "bench": "daemon.bench",
+    "demo": "daemon.demo_cmd",
     "run": "daemon.run_cmd",
 }
 
