@@ -74,7 +74,7 @@ def run(args: argparse.Namespace, out: TextIO | None = None, err: TextIO | None 
         from rich.console import Console
         from rich.table import Table
 
-        console = Console(file=out)
+        console = Console(file=out, highlight=False)
         console.print(f"[bold green]{summary}[/]")
         if args.tags:
             table = Table("unit", "topic", "key", "measurement", "uom", "scale", "offset", "gauge")

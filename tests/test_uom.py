@@ -203,10 +203,7 @@ def test_registry_is_cached_and_injectable() -> None:
 
 
 def test_importing_the_config_does_not_build_a_registry() -> None:
-    code = (
-        "import daemon.config, daemon.uom; "
-        "print(daemon.uom.get_registry.cache_info().currsize)"
-    )
+    code = "import daemon.config, daemon.uom; print(daemon.uom.get_registry.cache_info().currsize)"
     out = subprocess.run(
         [sys.executable, "-c", code], capture_output=True, text=True, check=True
     ).stdout
