@@ -333,6 +333,7 @@ class MqttFeed:
         self._lost = asyncio.Event()
         self._connected = asyncio.Event()
         self._task: asyncio.Task[None] | None = None
+        self._session_committed = False
 
     # -- public ----------------------------------------------------------------------------
 
@@ -394,9 +395,9 @@ class MqttFeed:
             if not first:
                 self.stats.reconnect()
             first = False
-            good = False
+            self._session_committed = False
             try:
-                good = await self._session()
+                await self._session()
             except (aiomqtt.MqttError, OSError, TimeoutError, _Reconnect) as exc:
                 log.warning(
                     "mqtt connection to %s:%s ended: %s", self.broker.host, self.broker.port, exc
@@ -404,7 +405,7 @@ class MqttFeed:
             finally:
                 self._connected.clear()
                 self.stats.connection_state(False)
-            attempt = 0 if good else attempt + 1
+            attempt = 0 if self._session_committed else attempt + 1
             delay = backoff_delay(
                 attempt, initial_s=self.backoff_initial_s, cap_s=self.backoff_cap_s, rng=self._rng
             )
@@ -479,8 +480,8 @@ class MqttFeed:
                 log.warning("inbound queue full: refusing messages until reconnect")
         self.stats.queue_depth(self._inbound.qsize())
 
-    async def _session(self) -> bool:
-        """One connection: returns True when at least one batch was committed."""
+    async def _session(self) -> None:
+        """One connection, until it ends (by an exception)."""
         client = self._make_client()
         gen = self._generation
         self._lost.clear()
@@ -488,7 +489,6 @@ class MqttFeed:
         # and the broker redelivers those messages anyway
         while not self._inbound.empty():
             self._inbound.get_nowait()
-        committed_any = False
         async with client:
             if self._v5:
                 opts = SubscribeOptions(
@@ -514,13 +514,12 @@ class MqttFeed:
                 msgs = await self._collect(gen)
                 if msgs:
                     await self._process(inner, msgs)
-                    committed_any = True
+                    self._session_committed = True
                 if gen in self._overflowed and self._inbound.empty():
                     self._overflowed.discard(gen)
                     raise _Reconnect("inbound queue overflowed; reconnecting for redelivery")
                 if self._lost.is_set() and self._inbound.empty():
                     raise _Reconnect("connection lost")
-        return committed_any
 
     async def _collect(self, gen: int) -> list[_Inbound]:
         """Wait for messages and gather one micro-batch of this connection's messages."""
