@@ -19,6 +19,7 @@ from __future__ import annotations
 import asyncio
 import contextlib
 import json
+import shutil
 import time
 import uuid
 from collections.abc import AsyncIterator
@@ -428,3 +429,72 @@ async def test_inbound_overflow_is_counted_and_nothing_is_lost(
         assert stats.overflow > 0
     if stats.overflow:
         assert stats.reconnects >= 1  # refused messages came back through a reconnect
+
+
+def _free_port() -> int:
+    import socket
+
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return int(s.getsockname()[1])
+
+
+async def _start_mosquitto(conf, port: int):
+    import subprocess
+
+    proc = subprocess.Popen(
+        ["mosquitto", "-c", str(conf)], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL
+    )
+    deadline = time.monotonic() + 10
+    while time.monotonic() < deadline:
+        try:
+            _, w = await asyncio.open_connection("127.0.0.1", port)
+            w.close()
+            await w.wait_closed()
+            return proc
+        except OSError:
+            await asyncio.sleep(0.05)
+    proc.kill()
+    raise AssertionError("private mosquitto did not start")
+
+
+@pytest.mark.skipif(shutil.which("mosquitto") is None, reason="mosquitto not on PATH")
+@pytest.mark.parametrize("proto", ["5", "3.1.1"])
+async def test_broker_restart_feed_reconnects_and_loses_nothing(tmp_path, proto, request) -> None:
+    """A private Mosquitto (persistence on, so sessions survive its restart) is stopped and
+    started again under the feed; the feed reconnects by itself and every message published
+    before and after arrives.  The shared broker on 1883 is never touched."""
+    port = _free_port()
+    request.node.user_properties.append(("mqtt_broker", f"private mosquitto at 127.0.0.1:{port}"))
+    conf = tmp_path / "mosquitto.conf"
+    conf.write_text(
+        f"listener {port} 127.0.0.1\nallow_anonymous true\npersistence true\n"
+        f"persistence_location {tmp_path}/\nautosave_interval 1\n"
+    )
+    b = Broker("127.0.0.1", port, proto, client_id=f"brayscope-test-{uuid.uuid4().hex[:12]}")
+    prefix = f"brayscope-test/{uuid.uuid4().hex}"
+    rec = Recorder()
+    stats = MemoryFeedStats()
+    proc = await _start_mosquitto(conf, port)
+    try:
+        async with spy_feed(b, plant_decoder(prefix), rec, stats=stats) as feed:
+            task = asyncio.create_task(consume(feed))
+            await feed.wait_connected(TIMEOUT_S)
+            async with publisher(b) as pub:
+                for i in range(10):
+                    await pub.publish(f"{prefix}/gt1/JT-GEN", str(i), qos=1)
+            await wait_for(lambda: len(set(rec.values())) == 10)
+            proc.terminate()  # SIGTERM: Mosquitto saves its persistence file and exits
+            proc.wait(timeout=10)
+            await wait_for(lambda: not feed.connected)
+            proc = await _start_mosquitto(conf, port)
+            await feed.wait_connected(TIMEOUT_S)
+            async with publisher(b) as pub:
+                for i in range(10, 20):
+                    await pub.publish(f"{prefix}/gt1/JT-GEN", str(i), qos=1)
+            await wait_for(lambda: sorted(set(rec.values())) == list(range(20)))
+            task.cancel()
+    finally:
+        proc.terminate()
+        proc.wait(timeout=10)
+    assert stats.reconnects >= 1
