@@ -495,3 +495,99 @@ def test_fuzz_parse_timestamp_raises_only_value_error(raw: object) -> None:
     except ValueError:
         return
     assert math.isfinite(x)
+
+
+# -- with the real plant-file classes ---------------------------------------------------------
+
+PLANT_TOML = """
+[site]
+name = "Kestrel Ridge Energy Park"
+
+[daemon]
+max_payload_bytes = 4096
+future_tolerance_s = 60
+past_tolerance_s = 3600
+
+[units.KR-GT1]
+type = "gas_turbine"
+fuel = { lower_heating_value = 42.8e6, carbon_mass_fraction = 0.866, hydrogen_mass_fraction = 0.134 }
+
+  [[units.KR-GT1.tags]]
+  topic = "kestrel/gt1/PT-AMB"
+  measurement = "ambient_pressure"
+  uom = "mbar"
+  low = 800.0
+  high = 1100.0
+
+  [[units.KR-GT1.tags]]
+  topic = "kestrel/gt1/unit"
+  key = "PT-CD"
+  measurement = "compressor_discharge_pressure"
+  uom = "barg"
+  low = 1.0
+  high = 30.0
+  baro_measurement = "ambient_pressure"
+
+  [[units.KR-GT1.tags]]
+  topic = "kestrel/gt1/unit"
+  key = "TT-CD"
+  measurement = "compressor_discharge_temperature"
+  uom = "degC"
+  low = 0.0
+  high = 650.0
+  max_age_s = 25.0
+"""
+
+
+def test_decoder_from_a_loaded_plant_file(tmp_path) -> None:
+    from daemon.config import load_plant
+
+    # the other measurements the gas-turbine type requires, as plain SI tags
+    others = [
+        ("ambient_temperature", "K", 230, 330),
+        ("ambient_relative_humidity", "fraction", 0, 1),
+        ("compressor_inlet_temperature", "K", 230, 330),
+        ("compressor_inlet_pressure", "Pa", 8e4, 1.1e5),
+        ("exhaust_temperature", "K", 500, 1000),
+        ("exhaust_pressure", "Pa", 9e4, 1.2e5),
+        ("fuel_mass_flow", "kg/s", 0, 5),
+        ("generator_power", "W", 0, 6e7),
+    ]
+    extra = "".join(
+        f'\n  [[units.KR-GT1.tags]]\n  topic = "kestrel/gt1/{m}"\n  measurement = "{m}"\n'
+        f'  uom = "{u}"\n  low = {lo}\n  high = {hi}\n'
+        for m, u, lo, hi in others
+    )
+    path = tmp_path / "plant.toml"
+    path.write_text(PLANT_TOML + extra)
+    try:
+        plant = load_plant(path)
+    except Exception as exc:  # the unit type must be importable for load_plant
+        pytest.fail(f"plant file did not load: {exc}")
+    d = Decoder.from_plant(plant)
+    assert d.limits.max_payload_bytes == 4096
+    assert d.limits.future_tolerance_s == 60 and d.limits.past_tolerance_s == 3600
+    routes = {r.measurement: r for r in d.routes()}
+    assert routes["compressor_discharge_pressure"].si_unit == "Pa"  # from the unit type schema
+    # gauge value before any barometric reading: refused, not guessed
+    res = d.decode("kestrel/gt1/unit", b'{"PT-CD": 14.2}', T0)
+    assert res.quarantined[0].reason == "conversion_error"
+    d.decode("kestrel/gt1/PT-AMB", b"1013.25", T0)
+    res = d.decode("kestrel/gt1/unit", b'{"PT-CD": 14.2, "TT-CD": 380.0}', T0)
+    got = {r.measurement: r.value for r in res.readings}
+    assert got["compressor_discharge_pressure"] == pytest.approx(14.2e5 + 101325.0)  # BIPM
+    assert got["compressor_discharge_temperature"] == pytest.approx(653.15)  # BIPM
+    assert d.decode("kestrel/gt1/PT-AMB", b"1" * 5000, T0).quarantined[0].reason == (
+        "oversized_payload"
+    )
+    # the same plant builds the assembler: ages from the tags, tick from [daemon]
+    from daemon.assembly import Assembler, UnitSpec
+
+    spec = UnitSpec.from_config("KR-GT1", plant.units["KR-GT1"])
+    assert spec.max_age_s["compressor_discharge_temperature"] == 25.0
+    assert spec.unit_type == "gas_turbine"
+    a = Assembler.from_plant(plant)
+    a.ingest(res.readings)
+    (snap,) = a.tick(T0)
+    assert snap.values["compressor_discharge_temperature"] == pytest.approx(653.15)
+    assert snap.quality["generator_power"] != 0  # never received
