@@ -341,7 +341,7 @@ _ENGINEERING: Mapping[str, tuple[str, str, int]] = {
     "K": ("degC", "°C", 1),
     "Pa": ("bar", "bar", 3),
     "W": ("MW", "MW", 2),
-    "J/kg": ("MJ/kg", "MJ/kg", 2),
+    "J/kg": ("kJ/kg", "kJ/kg", 1),
     "kg/s": ("kg/s", "kg/s", 2),
     "kJ/kWh": ("kJ/kWh", "kJ/kWh", 0),
 }

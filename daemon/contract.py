@@ -40,7 +40,6 @@ import json
 import math
 from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass, field
-from functools import lru_cache
 from typing import Annotated, Any, Literal, cast
 
 from pydantic import (
@@ -95,6 +94,8 @@ ORDER_CHECKS: tuple[tuple[str, str], ...] = (
 
 #: Units whose quantities are absolute and therefore strictly positive.
 POSITIVE_UNITS = frozenset({"K", "Pa"})
+#: Units of measurements that must be strictly positive when their range starts at 0.
+POSITIVE_MEASURED_UNITS = frozenset({"kg/s", "W"})
 
 _STRICT: ConfigDict = ConfigDict(extra="forbid", strict=True, allow_inf_nan=False, frozen=True)
 
@@ -407,15 +408,20 @@ def correction_tables(spec: BaseModel) -> CorrectionTables:
 # --------------------------------------------------------------------------------------------
 
 
-def _spec_validator(spec: FieldSpec) -> Callable[[float], float]:
-    positive = spec.unit in POSITIVE_UNITS
+def _spec_validator(spec: FieldSpec, *, measurement: bool) -> Callable[[float], float]:
+    # Absolute temperatures and pressures are always > 0; measured flows and power must be > 0
+    # too (a heat rate needs both), while a parameter such as a loss may well be 0.
+    positive = spec.unit in POSITIVE_UNITS or (
+        measurement and spec.unit in POSITIVE_MEASURED_UNITS and spec.low >= 0.0
+    )
 
     def check(v: float) -> float:
         q = format_quantity
         if positive and not v > 0.0:
+            absolute = " (absolute)" if spec.unit in POSITIVE_UNITS else ""
             raise _custom(
                 "out_of_range",
-                f"must be > 0 {spec.unit} (absolute) (got {q(v, spec.unit)})",
+                f"must be > 0 {spec.unit}{absolute} (got {q(v, spec.unit)})",
             )
         if v < spec.low or v > spec.high:
             if math.isfinite(spec.low) and math.isfinite(spec.high):
@@ -430,13 +436,12 @@ def _spec_validator(spec: FieldSpec) -> Callable[[float], float]:
     return check
 
 
-def _field(spec: FieldSpec, *, optional_default: float | None = None) -> tuple[Any, Any]:
-    annotated = Annotated[float, AfterValidator(_spec_validator(spec))]
+def _field(spec: FieldSpec, *, measurement: bool) -> tuple[Any, Any]:
+    annotated = Annotated[float, AfterValidator(_spec_validator(spec, measurement=measurement))]
     desc = f"{spec.description} [{spec.unit}]"
     if spec.required:
         return (annotated, Field(description=desc))
-    default = spec.default if spec.default is not None else optional_default
-    return (annotated | None, Field(default=default, description=desc))
+    return (annotated | None, Field(default=spec.default, description=desc))
 
 
 def _order_validator(
@@ -484,14 +489,24 @@ def contract_for(unit_type: UnitType) -> Contract:
     The result is cached per unit-type object; the models reject unknown keys, NaN/Infinity,
     strings for numbers, and values outside the specs' ranges.
     """
-    return _contract_cached(unit_type)  # type: ignore[arg-type]
+    cached = _CONTRACTS.get(id(unit_type))
+    if cached is None or cached.unit_type is not unit_type:
+        cached = _build_contract(unit_type)
+        _CONTRACTS[id(unit_type)] = cached
+    return cached
 
 
-@lru_cache(maxsize=16)
-def _contract_cached(unit_type: UnitType) -> Contract:
+#: Built contracts by ``id`` of their unit type (unit types need not be hashable; the entry
+#: keeps its unit type alive, so an id is never reused while cached).
+_CONTRACTS: dict[int, Contract] = {}
+
+
+def _build_contract(unit_type: UnitType) -> Contract:
     specs = {s.name: s for s in unit_type.measurements}
     tag = unit_type.name.title().replace("_", "")
-    meas_fields: dict[str, Any] = {s.name: _field(s) for s in unit_type.measurements}
+    meas_fields: dict[str, Any] = {
+        s.name: _field(s, measurement=True) for s in unit_type.measurements
+    }
     measurements = create_model(
         f"{tag}Measurements",
         __config__=_STRICT,
@@ -500,7 +515,9 @@ def _contract_cached(unit_type: UnitType) -> Contract:
         ),
         **meas_fields,
     )
-    param_fields: dict[str, Any] = {s.name: _field(s) for s in unit_type.parameters}
+    param_fields: dict[str, Any] = {
+        s.name: _field(s, measurement=False) for s in unit_type.parameters
+    }
     parameters = create_model(f"{tag}Parameters", __config__=_STRICT, **param_fields)
     record = create_model(
         f"{tag}Record",
