@@ -27,6 +27,7 @@ module and must not need it.
 from __future__ import annotations
 
 import argparse
+import importlib
 import importlib.util
 import json
 import os
@@ -177,7 +178,9 @@ def load_engine() -> ModuleType | None:
     The engine is a test helper, not part of the installed package: the bench runs from a
     source checkout.  Returns None when Cantera or the file is missing.
     """
-    if importlib.util.find_spec("cantera") is None:
+    try:
+        importlib.import_module("cantera")
+    except ImportError:
         return None
     path = Path(__file__).resolve().parents[1] / "tests" / "cantera_engine.py"
     if not path.is_file():
@@ -234,9 +237,8 @@ def make_snapshots(
 
 
 def _compute(measurements: Mapping[str, np.ndarray]) -> Any:
-    from models.gas_turbine import GAS_TURBINE
-
     from models.fuel import gas_fuel
+    from models.gas_turbine import GAS_TURBINE
 
     fuel = gas_fuel(dict(BENCH_FUEL))
     return GAS_TURBINE.compute(measurements, fuel, dict(BENCH_PARAMETERS))
