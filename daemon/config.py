@@ -263,9 +263,12 @@ class TagConfig(_Section):
     @property
     def converter(self) -> Converter:
         """The compiled converter (set by :func:`load_plant`)."""
-        if self._converter is None:
+        # read the private slot directly: pydantic's attribute lookup for private attributes
+        # costs microseconds, and this sits on the per-reading path
+        conv: Converter | None = self.__pydantic_private__["_converter"]  # type: ignore[index]
+        if conv is None:
             raise RuntimeError("tag not compiled: load the plant file with load_plant()")
-        return self._converter
+        return conv
 
     @property
     def is_gauge(self) -> bool:
