@@ -15,6 +15,7 @@ import argparse
 import io
 import json
 import math
+import os
 import sys
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
@@ -488,13 +489,33 @@ def _read_input(name: str) -> str:
 
 
 def run(args: argparse.Namespace, unit_types: Mapping[str, UnitType] | None = None) -> int:
-    """Run ``brayscope calc``; returns the exit code (0, 1 or 2, see the module docstring)."""
+    """Run ``brayscope calc``; returns the exit code (0, 1 or 2, see the module docstring).
+
+    ``unit_types`` (name -> unit type) defaults to :func:`models.unit_types.builtin_unit_types`.
+    A reader that closes the pipe early (``| head``) ends the command quietly with code 1.
+    """
+    try:
+        return _run(args, unit_types)
+    except BrokenPipeError:
+        # Python docs, signal module, "Note on SIGPIPE": point stdout at devnull so the
+        # interpreter's final flush does not raise again.
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return EXIT_INVALID
+
+
+def _run(args: argparse.Namespace, unit_types: Mapping[str, UnitType] | None) -> int:
     if unit_types is None:
         from models.unit_types import builtin_unit_types
 
         unit_types = builtin_unit_types()
     if args.example:
         sys.stdout.write(example_path().read_text(encoding="utf-8"))
+        if sys.stdout.isatty():
+            sys.stderr.write(
+                f"(shipped at {example_path()}; compute it with "
+                "'brayscope calc --example | brayscope calc -')\n"
+            )
         return EXIT_OK
     if args.list_examples:
         for name, what in EXAMPLES.items():

@@ -108,8 +108,8 @@ _STRICT: ConfigDict = ConfigDict(extra="forbid", strict=True, allow_inf_nan=Fals
 def format_quantity(value: float, unit: str = "") -> str:
     """Format a number for a message: integers plainly, others to 6 significant digits.
 
-    >>> format_quantity(101325.0, "Pa"), format_quantity(0.8712345, "1"), format_quantity(2e7)
-    ('101325 Pa', '0.871234', '2e+07')
+    >>> format_quantity(101325.0, "Pa"), format_quantity(0.87123456, "1"), format_quantity(2e7)
+    ('101325 Pa', '0.871235', '2e+07')
     """
     if math.isfinite(value) and value == round(value) and abs(value) < 1e7:
         text = str(int(value))

@@ -294,6 +294,26 @@ def test_fuel_refused_by_the_model_rejects_its_group_only(
     assert "record 1" in err
 
 
+def test_record_the_model_cannot_balance_exits_1_with_its_reason(
+    capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # First law (common practice): generator power above the fuel's heat input (140 MW from
+    # 2.7 kg/s of a ~47.7 MJ/kg gas, ~129 MW) admits no positive air flow in the heat balance.
+    rec = snapshot()
+    rec["measurements"]["generator_power"] = 140e6
+    rc, out, err = cli(["-"], capsys, monkeypatch, json.dumps(rec))
+    assert rc == calc.EXIT_INVALID
+    doc = json.loads(out)
+    assert doc["status"]["ok"] is False
+    assert doc["status"]["errors"] == []  # accepted by the contract ...
+    assert "energy_balance_infeasible" in doc["status"]["reasons"]  # ... refused by the model
+    assert doc["results"]["air_mass_flow"] is None
+    assert doc["results"]["turbine_inlet_temperature"] is None
+    # the compressor needs no heat balance and is still reported
+    assert doc["results"]["compressor_isentropic_efficiency"] is not None
+    assert "not fully computable: energy_balance_infeasible" in err
+
+
 # ------------------------------------------------------------------------------------------
 # Usage errors and help
 # ------------------------------------------------------------------------------------------

@@ -289,6 +289,22 @@ def test_absolute_temperature_and_pressure_must_be_positive(name: str, bad: floa
     )
 
 
+@pytest.mark.parametrize(("name", "unit"), [("fuel_mass_flow", "kg/s"), ("generator_power", "W")])
+def test_zero_fuel_flow_or_power_is_rejected(name: str, unit: str) -> None:
+    # common practice: a heat rate needs fuel flow > 0 and power > 0 (HR = 3600 m_f LHV / P)
+    rec = example()
+    rec["measurements"][name] = 0.0
+    (msg,) = errors_of(rec)
+    assert msg == f"measurements.{name}: must be > 0 {unit} (got 0 {unit})"
+
+
+def test_zero_loss_parameter_is_accepted() -> None:
+    rec = example()
+    rec["parameters"]["mechanical_loss"] = 0.0
+    rec["parameters"]["casing_heat_loss_fraction"] = 0.0
+    assert isinstance(check(rec), ValidRecord)
+
+
 @pytest.mark.parametrize("rh", [-0.01, 1.01, 62.0])
 def test_relative_humidity_outside_0_1_is_rejected(rh: float) -> None:
     # WMO-No. 8: relative humidity is a ratio 0..1 (a percentage is the usual mistake).
