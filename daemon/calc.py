@@ -12,6 +12,7 @@ unreadable input.
 from __future__ import annotations
 
 import argparse
+import functools
 import io
 import json
 import math
@@ -176,6 +177,13 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
 # --------------------------------------------------------------------------------------------
 
 
+@functools.lru_cache(maxsize=1024)
+def _split_reasons(code: int) -> tuple[tuple[str, ...], tuple[str, ...]]:
+    """(reason names, warning names) of a status code; few distinct codes occur in a batch."""
+    warn = int(WARNING_REASONS)
+    return tuple(reason_names(code & ~warn)), tuple(reason_names(code & warn))
+
+
 @dataclass
 class RecordResult:
     """The output of one input record (computed or rejected)."""
@@ -192,12 +200,12 @@ class RecordResult:
     @property
     def reasons(self) -> list[str]:
         """Names of the reason bits that left results uncomputed."""
-        return reason_names(self.status_code & ~int(WARNING_REASONS))
+        return list(_split_reasons(self.status_code)[0])
 
     @property
     def warnings(self) -> list[str]:
         """Names of the warning bits (computed, but worth a look)."""
-        return reason_names(self.status_code & int(WARNING_REASONS))
+        return list(_split_reasons(self.status_code)[1])
 
     @property
     def ok(self) -> bool:

@@ -572,14 +572,11 @@ def _type_name(value: Any) -> str:
     }.get(type(value), f"a {type(value).__name__}")
 
 
-def _find_nonfinite(value: Any, path: tuple[str, ...] = ()) -> list[tuple[str, ...]]:
-    if isinstance(value, NonFinite):
-        return [path]
-    if isinstance(value, dict):
-        return [p for k, v in value.items() for p in _find_nonfinite(v, (*path, str(k)))]
-    if isinstance(value, list):
-        return [p for i, v in enumerate(value) for p in _find_nonfinite(v, (*path, str(i)))]
-    return []
+_NONFINITE_MESSAGE = (
+    "NaN/Infinity is not JSON and is not accepted; omit an unknown optional value or give null"
+)
+#: Top-level keys whose type is a union: pydantic adds the member's name to the error location.
+_UNION_KEYS = {"id": "a string or an integer", "timestamp": "a string or a number"}
 
 
 def _convert_error(err: Mapping[str, Any], contract: Contract) -> FieldError:
@@ -594,8 +591,14 @@ def _convert_error(err: Mapping[str, Any], contract: Contract) -> FieldError:
         for i, p in enumerate(raw_loc)
         if p != "[key]" and not (i == 1 and raw_loc[0] == "fuel" and p in _FUEL_TAGS)
     ]
+    if loc and loc[0] in _UNION_KEYS:
+        loc = loc[:1]
     path = ".".join(loc)
     value = err.get("input")
+    if isinstance(value, NonFinite):
+        return FieldError(path, _NONFINITE_MESSAGE)
+    if len(loc) == 1 and loc[0] in _UNION_KEYS and kind != "extra_forbidden":
+        return FieldError(path, f"must be {_UNION_KEYS[loc[0]]} (got {_type_name(value)})")
     if kind == "extra_forbidden":
         known = contract.known_keys.get(raw_loc[:-1], ())
         path = ".".join(loc[:-1])
@@ -635,8 +638,6 @@ def _convert_error(err: Mapping[str, Any], contract: Contract) -> FieldError:
         return FieldError(path, f"must be a string (got {_type_name(value)})")
     if "text" in ctx:
         return FieldError(path, str(ctx["text"]))
-    if kind.startswith(("union", "string", "int", "float")) and loc and loc[-1] in ("id",):
-        return FieldError(path, f"must be a string or an integer (got {_type_name(value)})")
     return FieldError(path, str(err["msg"]))
 
 
@@ -666,17 +667,9 @@ def validate_record(
     """
     if not isinstance(value, dict):
         return [FieldError("", f"must be a JSON object (got {_type_name(value)})")]
-    nonfinite = _find_nonfinite(value)
-    if nonfinite:
-        return [
-            FieldError(
-                ".".join(p),
-                "NaN/Infinity is not JSON and is not accepted; omit an unknown optional "
-                "value or give null",
-            )
-            for p in nonfinite
-        ]
     unit_name = value.get("unit", default_unit)
+    if isinstance(unit_name, NonFinite):
+        return [FieldError("unit", _NONFINITE_MESSAGE)]
     if not isinstance(unit_name, str) or unit_name not in unit_types:
         shown = unit_name if isinstance(unit_name, str) else _type_name(unit_name)
         hint = _suggest(shown, unit_types) if isinstance(unit_name, str) else ""
@@ -690,7 +683,9 @@ def validate_record(
     try:
         rec = contract.record.model_validate(value)
     except ValidationError as exc:
-        return [_convert_error(e, contract) for e in exc.errors(include_url=False)]
+        # dict.fromkeys: a union reports one error per member; keep each message once, in order
+        found = (_convert_error(e, contract) for e in exc.errors(include_url=False))
+        return list(dict.fromkeys(found))
     meas = rec.measurements.model_dump()  # type: ignore[attr-defined]
     params = rec.parameters.model_dump()  # type: ignore[attr-defined]
     return ValidRecord(

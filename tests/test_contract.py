@@ -189,6 +189,24 @@ def test_nonfinite_literal_is_rejected_with_its_path(literal: str) -> None:
     )
 
 
+def test_nonfinite_anywhere_is_named_beside_the_other_problems() -> None:
+    text = (
+        json.dumps(example())
+        .replace('"timestamp": "2026-06-14T10:00:00Z"', '"timestamp": Infinity')
+        .replace('"CH4": 0.931', '"CH4": NaN')
+        .replace('"ambient_relative_humidity": 0.62', '"ambient_relative_humidity": 62')
+    )
+    (raw,) = parse_document(text).records
+    msgs = errors_of(raw.value)
+    assert [m.split(":")[0] for m in msgs] == [
+        "timestamp",
+        "measurements.ambient_relative_humidity",
+        "fuel.composition.CH4",
+    ]
+    assert "NaN/Infinity is not JSON" in msgs[0]
+    assert "NaN/Infinity is not JSON" in msgs[2]
+
+
 def test_python_nan_is_rejected_too() -> None:
     """Records built in Python (the daemon) reach the same check without JSON parsing."""
     rec = example()
