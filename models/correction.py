@@ -16,11 +16,15 @@ Two methods, always labelled in the results (``correction_method``):
     machine at base load:
 
     * turbine inlet temperature held at its reconstructed value;
-    * compressor corrected air flow held, ``m_a sqrt(theta) / delta = const`` with
-      ``theta = T1 / T1_ref`` and ``delta = p1 / p1_ref``;
+    * fixed shaft speed, constant inlet volume flow: ``m_a ∝ delta / theta`` with
+      ``theta = T1 / T1_ref`` and ``delta = p1 / p1_ref`` (the corrected flow
+      ``m_a sqrt(theta) / delta`` falls with the corrected speed ``N / sqrt(theta)``);
     * first turbine nozzle choked, ``m_g sqrt(T3) / p3 = const``; with T3 and the fuel-air
-      ratio held this makes the pressure ratio scale as ``1 / sqrt(theta)``:
-      ``PR_ref = PR_meas sqrt(T1_meas / T1_ref)``.
+      ratio held this makes ``p3 ∝ m_a`` and the pressure ratio scale as ``1 / theta``:
+      ``PR_ref = PR_meas T1_meas / T1_ref``.
+
+    Under this law a heavy-duty cycle loses about 0.6-0.75 % of power per kelvin of inlet
+    temperature, the trade's usual 0.5-0.8 %/K (checked in ``tests/test_correction.py``).
 
 ``"curve"``
     Curve-based, from unit-supplied tables of correction factors versus compressor inlet
@@ -272,25 +276,25 @@ def reference_operating_point(
     Returns
     -------
     pressure_ratio_ref : ndarray
-        ``PR sqrt(T1 / T1_ref)`` [1].
+        ``PR T1 / T1_ref`` [1].
     air_mass_flow_ref : ndarray
-        ``m_a (p1_ref / p1) sqrt(T1 / T1_ref)`` [kg/s].
+        ``m_a (p1_ref / p1) (T1 / T1_ref)`` [kg/s].
 
     Notes
     -----
-    Constant corrected flow ``m_a sqrt(theta)/delta`` at the compressor and a choked first
-    turbine nozzle at constant turbine inlet temperature (``m_g sqrt(T3)/p3`` constant, fuel-air
-    ratio held): ``p3 / p1 ∝ m_a / p1 ∝ 1/sqrt(theta)``.  This is the simplest law that makes
-    power fall with inlet temperature at the rate heavy-duty machines show; a unit with
-    variable inlet guide vanes or a different control mode needs a law of its own.
+    Constant inlet volume flow at fixed speed (``m_a ∝ p1 / T1``) and a choked first turbine
+    nozzle at constant turbine inlet temperature (``m_g sqrt(T3)/p3`` constant, fuel-air ratio
+    held): ``p3 / p1 ∝ m_a / p1 ∝ 1/theta``.  This is the simplest law that makes power fall
+    with inlet temperature at the rate heavy-duty machines show; a unit with variable inlet
+    guide vanes, inlet cooling or a part-load control mode needs a law of its own.
     """
     T1 = np.asarray(compressor_inlet_temperature, dtype=np.float64)
     p1 = np.asarray(compressor_inlet_pressure, dtype=np.float64)
-    root = np.sqrt(T1 / np.asarray(reference_inlet_temperature, dtype=np.float64))
-    pr_ref = np.asarray(pressure_ratio, dtype=np.float64) * root
+    ratio = T1 / np.asarray(reference_inlet_temperature, dtype=np.float64)
+    pr_ref = np.asarray(pressure_ratio, dtype=np.float64) * ratio
     ma_ref = (
         np.asarray(air_mass_flow, dtype=np.float64)
         * (np.asarray(reference_inlet_pressure, dtype=np.float64) / p1)
-        * root
+        * ratio
     )
     return pr_ref, ma_ref

@@ -17,13 +17,20 @@ References
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from models import gas
+from models.combustor import exhaust_mixture
+from models.fuel import FuelProperties
 from models.status import Reason
 
 __all__ = [
+    "BraytonCycle",
     "air_standard_brayton_efficiency",
+    "brayton_cycle",
     "carnot_efficiency",
 ]
 
@@ -32,7 +39,7 @@ StatusArray = NDArray[np.uint32]
 
 
 def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    status |= mask.astype(np.uint32) * np.uint32(reason)
+    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
 
 
 def air_standard_brayton_efficiency(
@@ -100,3 +107,150 @@ def carnot_efficiency(T_cold: ArrayLike, T_hot: ArrayLike) -> tuple[FloatArray, 
     with np.errstate(invalid="ignore", divide="ignore"):
         eta = 1.0 - Tc / Th
     return np.where(status != 0, np.nan, eta), status
+
+
+@dataclass(frozen=True)
+class BraytonCycle:
+    """Result of :func:`brayton_cycle`; specific quantities per kg of air.
+
+    Attributes
+    ----------
+    T2s, T2 : compressor isentropic and actual discharge temperature [K]
+    T4s, T4 : turbine isentropic and actual exhaust temperature [K]
+    compressor_work, turbine_work, net_work : [J/kg air]
+    heat_input : [J/kg air] (h3 - h2 for air standard, f LHV with fuel)
+    back_work_ratio : compressor_work / turbine_work [1]
+    efficiency : net_work / heat_input [1]
+    fuel_air_ratio : [1] (0 for air standard)
+    status : Reason bits
+    """
+
+    T2s: FloatArray
+    T2: FloatArray
+    T4s: FloatArray
+    T4: FloatArray
+    compressor_work: FloatArray
+    turbine_work: FloatArray
+    net_work: FloatArray
+    heat_input: FloatArray
+    back_work_ratio: FloatArray
+    efficiency: FloatArray
+    fuel_air_ratio: FloatArray
+    status: StatusArray
+
+
+def brayton_cycle(
+    air: gas.Mixture,
+    T1: ArrayLike,
+    p1: ArrayLike,
+    pressure_ratio: ArrayLike,
+    T3: ArrayLike,
+    *,
+    compressor_efficiency: ArrayLike = 1.0,
+    turbine_efficiency: ArrayLike = 1.0,
+    fuel: FuelProperties | None = None,
+    fuel_enthalpy: ArrayLike = 0.0,
+    real_gas: bool = True,
+) -> BraytonCycle:
+    """Simple Brayton cycle with variable properties (ideal when both efficiencies are 1).
+
+    Parameters
+    ----------
+    air : models.gas.Mixture
+        Working fluid at the compressor.
+    T1, p1 : array_like
+        Compressor inlet temperature [K] and pressure [Pa].
+    pressure_ratio : array_like
+        r = p2/p1 [1]; the turbine expands back to p1 (no pressure losses).
+    T3 : array_like
+        Turbine inlet temperature [K].
+    compressor_efficiency, turbine_efficiency : array_like, optional
+        Isentropic efficiencies [1] (default 1: the ideal cycle).
+    fuel : FuelProperties, optional
+        None: air-standard cycle, heat added to the air itself.  Given: internal combustion of
+        this fuel (complete, eta_b = 1), the turbine expands the exhaust gas and the heat
+        input is f LHV.
+    fuel_enthalpy : array_like, optional
+        Sensible enthalpy of the fuel h_f [J/kg] (default 0).
+    real_gas : bool, optional
+        Include the real-gas departure (default True); the textbook air-standard cycle is
+        ``real_gas=False``.
+
+    Returns
+    -------
+    BraytonCycle
+
+    Notes
+    -----
+    ``T2s``: s(T2s, p2) = s(T1, p1); ``h2 = h1 + (h2s - h1)/eta_c``; with fuel
+    ``h2 + f (h_f + LHV) = (1 + f) h_g(T3)`` solved for f in closed form (exhaust
+    properties are linear in f per kg of air); ``T4s``: s(T4s, p1) = s(T3, p2);
+    ``h4 = h3 - eta_t (h3 - h4s)``; ``eta = (w_t - w_c) / q_in``.
+    """
+    T1a = np.asarray(T1, dtype=np.float64)
+    p1a = np.asarray(p1, dtype=np.float64)
+    r = np.asarray(pressure_ratio, dtype=np.float64)
+    T3a = np.asarray(T3, dtype=np.float64)
+    eta_c = np.asarray(compressor_efficiency, dtype=np.float64)
+    eta_t = np.asarray(turbine_efficiency, dtype=np.float64)
+    shape = np.broadcast(T1a, p1a, r, T3a, eta_c, eta_t, air.M).shape
+    status = np.zeros(shape, dtype=np.uint32)
+    _flag(status, np.broadcast_to(~(r > 1.0), shape), Reason.PRESSURE_RATIO_INVALID)
+    _flag(status, np.broadcast_to(~(T3a > T1a) | ~(T1a > 0), shape), Reason.INPUT_NONPHYSICAL)
+    eff_ok = (eta_c > 0) & (eta_c <= 1) & (eta_t > 0) & (eta_t <= 1)
+    _flag(status, np.broadcast_to(~eff_ok, shape), Reason.EFFICIENCY_OUT_OF_RANGE)
+    p2 = p1a * r
+
+    def h(m: gas.Mixture, T: FloatArray, p: FloatArray) -> FloatArray:
+        return m.h_real(T, p) if real_gas else m.h(T)
+
+    T2s, st = air.isentropic_T(T1a, p1a, p2, real_gas=real_gas)
+    status |= st
+    h1 = h(air, T1a, p1a)
+    h2 = h1 + (h(air, T2s, p2) - h1) / eta_c
+    T2, st = air.T_from_h(h2, T_guess=T2s, p=p2 if real_gas else None)
+    status |= st
+    if fuel is None:
+        g = air
+        f = np.zeros(shape)
+        h3 = h(air, T3a, p2)
+        q_in = h3 - h2
+        scale = np.ones(shape)
+    else:
+        f0 = 0.01
+        g0 = exhaust_mixture(air, fuel, f0)
+        ha3 = h(air, T3a, p2)
+        hpd3 = ((1.0 + f0) * h(g0, T3a, p2) - ha3) / f0
+        q = np.asarray(fuel_enthalpy) + fuel.lhv
+        f = (ha3 - h2) / (q - hpd3)
+        _flag(status, np.broadcast_to(~(f > 0), shape), Reason.ENERGY_BALANCE_INFEASIBLE)
+        g = exhaust_mixture(air, fuel, np.where(f > 0, f, 0.01))
+        h3 = (ha3 + f * hpd3) / (1.0 + f)
+        q_in = f * fuel.lhv
+        scale = 1.0 + f
+    T4s, st = g.isentropic_T(T3a, p2, p1a, real_gas=real_gas)
+    status |= st
+    h4 = h3 - eta_t * (h3 - h(g, T4s, p1a))
+    T4, st = g.T_from_h(h4, T_guess=T4s, p=p1a if real_gas else None)
+    status |= st
+    w_c = h2 - h1
+    w_t = scale * (h3 - h4)
+    bad = status != 0
+
+    def nan(a: FloatArray) -> FloatArray:
+        return np.where(bad, np.nan, np.broadcast_to(a, shape))
+
+    return BraytonCycle(
+        T2s=nan(T2s),
+        T2=nan(T2),
+        T4s=nan(T4s),
+        T4=nan(T4),
+        compressor_work=nan(w_c),
+        turbine_work=nan(w_t),
+        net_work=nan(w_t - w_c),
+        heat_input=nan(q_in),
+        back_work_ratio=nan(w_c / w_t),
+        efficiency=nan((w_t - w_c) / q_in),
+        fuel_air_ratio=nan(f),
+        status=status,
+    )
