@@ -305,6 +305,7 @@ def _run_loop(
     engine: ModuleType, m: Mapping[str, np.ndarray], sample: int, show_progress: bool
 ) -> tuple[float, dict[str, np.ndarray]]:
     """Reconstruct the first ``sample`` snapshots one by one with Cantera."""
+    from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeRemainingColumn
 
     from models.fuel import gas_fuel
@@ -319,7 +320,7 @@ def _run_loop(
         TimeRemainingColumn(),
         disable=not show_progress,
         transient=True,
-        console=None,
+        console=Console(stderr=True),
     )
     elapsed = 0.0
     with progress:
