@@ -217,15 +217,15 @@ class RecordResult:
         out: dict[str, Any] = {"record": self.ref.index}
         if self.ref.line is not None:
             out["line"] = self.ref.line
-        out |= {"id": self.id, "timestamp": self.timestamp, "unit": self.unit}
+        out |= {"id": self.id, "timestamp": self.timestamp, "unit_type": self.unit}
         out["status"] = {
             "ok": self.ok,
             "reasons": self.reasons,
             "warnings": self.warnings,
             "errors": self.errors,
         }
-        out["results"] = self.results
-        out["labels"] = self.labels
+        out |= self.results
+        out |= self.labels
         return out
 
 
@@ -309,8 +309,12 @@ def calculate(
     for raw in document.records:
         rid, ts = echo_id(raw.value)
         ref = RecordRef(raw.ref.index, raw.ref.line, rid)
-        unit = raw.value.get("unit", default_unit) if isinstance(raw.value, dict) else None
+        unit = raw.value.get("unit_type", default_unit) if isinstance(raw.value, dict) else None
         result = RecordResult(ref, unit if isinstance(unit, str) else None, rid, ts)
+        # every output object carries every result key (null until computed), so scripts can
+        # rely on the keys even for rejected records
+        known = unit_types.get(unit) if isinstance(unit, str) else None
+        result.results = {s.name: None for s in (known or unit_types[default_unit]).results}
         outputs[ref.index] = result
         if raw.error is not None:
             result.errors.append(str(raw.error))
@@ -319,7 +323,6 @@ def calculate(
         if isinstance(checked, list):
             result.errors.extend(str(e) for e in checked)
             continue
-        result.results = {s.name: None for s in checked.unit_type.results}
         groups.setdefault(_group_key(checked), []).append(checked)
     for group in groups.values():
         _compute_group(group, outputs)

@@ -5,7 +5,7 @@ A record is one snapshot of one unit::
     {
       "id": "KR-GT1 2026-06-01T12:00Z",          optional, echoed (string or integer)
       "timestamp": "2026-06-01T12:00:00Z",       optional, echoed (string or number)
-      "unit": "gas_turbine",                     optional unit type, default "gas_turbine"
+      "unit_type": "gas_turbine",                optional unit type, default "gas_turbine"
       "measurements": {...},                     SI units, absolute pressures
       "fuel": {"composition": {"CH4": 0.93, ...}}            gas fuel, mole fractions
            or {"lower_heating_value": 42.8e6,                liquid fuel, J/kg and
@@ -82,7 +82,7 @@ __all__ = [
     "validate_record",
 ]
 
-#: Unit type of a record without a ``"unit"`` key.
+#: Unit type of a record without a ``"unit_type"`` key.
 DEFAULT_UNIT_TYPE = "gas_turbine"
 
 #: Cross-field order checks: (field, must be greater than field), applied when a unit type has
@@ -524,7 +524,7 @@ def _build_contract(unit_type: UnitType) -> Contract:
         __config__=_STRICT,
         id=(str | int | None, None),
         timestamp=(str | float | None, None),
-        unit=(str, unit_type.name),
+        unit_type=(str, unit_type.name),
         measurements=(measurements, ...),
         fuel=(FuelSpec, ...),
         parameters=(parameters, Field(default_factory=parameters)),
@@ -658,7 +658,7 @@ def validate_record(
     unit_types : Mapping[str, UnitType]
         Known unit types by name (injected; usually :func:`models.unit_types.builtin_unit_types`).
     default_unit : str
-        Unit type of a record without a ``"unit"`` key.
+        Unit type of a record without a ``"unit_type"`` key.
 
     Returns
     -------
@@ -667,15 +667,15 @@ def validate_record(
     """
     if not isinstance(value, dict):
         return [FieldError("", f"must be a JSON object (got {_type_name(value)})")]
-    unit_name = value.get("unit", default_unit)
+    unit_name = value.get("unit_type", default_unit)
     if isinstance(unit_name, NonFinite):
-        return [FieldError("unit", _NONFINITE_MESSAGE)]
+        return [FieldError("unit_type", _NONFINITE_MESSAGE)]
     if not isinstance(unit_name, str) or unit_name not in unit_types:
         shown = unit_name if isinstance(unit_name, str) else _type_name(unit_name)
         hint = _suggest(shown, unit_types) if isinstance(unit_name, str) else ""
         return [
             FieldError(
-                "unit",
+                "unit_type",
                 f"unknown unit type {shown!r}{hint}; known: {', '.join(unit_types)}",
             )
         ]

@@ -74,8 +74,10 @@ def test_example_snapshot_computes_ok_and_plausibly(capsys: pytest.CaptureFixtur
     assert doc["status"] == {"ok": True, "reasons": [], "warnings": [], "errors": []}
     assert doc["id"] == "KR-GT1 2026-06-14T10:00Z"
     assert doc["timestamp"] == "2026-06-14T10:00:00Z"
-    assert list(doc["results"]) == RESULT_NAMES  # every result field, in the unit type's order
-    r = doc["results"]
+    assert [
+        k for k in doc if k in RESULT_NAMES
+    ] == RESULT_NAMES  # every result field, in the unit type's order
+    r = doc
     # common practice: heavy-duty compressor isentropic efficiency 0.84-0.89
     assert 0.84 <= r["compressor_isentropic_efficiency"] <= 0.89
     # common practice: simple-cycle heat rate 8 600-11 000 kJ/kWh
@@ -86,8 +88,8 @@ def test_example_snapshot_computes_ok_and_plausibly(capsys: pytest.CaptureFixtur
     assert r["compressor_pressure_ratio"] == pytest.approx(
         m["compressor_discharge_pressure"] / m["compressor_inlet_pressure"], rel=1e-12
     )
-    assert doc["labels"]["air_mass_flow_source"] == "heat_balance"  # no air flow measured
-    assert doc["labels"]["correction_method"] in ("model", "curve")
+    assert doc["air_mass_flow_source"] == "heat_balance"  # no air flow measured
+    assert doc["correction_method"] in ("model", "curve")
 
 
 def test_pure_methane_heat_rate_matches_iso6976(
@@ -96,7 +98,7 @@ def test_pure_methane_heat_rate_matches_iso6976(
     rec = snapshot()
     rec["fuel"] = {"composition": {"CH4": 1.0}}
     rc, out, _ = cli(["-"], capsys, monkeypatch, json.dumps(rec))
-    r = json.loads(out)["results"]
+    r = json.loads(out)
     # ISO 6976:2016 Table A.4: CH4 gross 890.58 kJ/mol at 25 °C; net = gross - 2 * 44.013 kJ/mol;
     # M(CH4) = 16.04246 g/mol (ISO 6976 atomic masses)  ->  LHV = 50.027 MJ/kg
     lhv = (890.58 - 2 * 44.013) / 16.04246e-3 * 1e3
@@ -133,8 +135,8 @@ def test_liquid_fuel_example_uses_the_curves(capsys: pytest.CaptureFixture[str])
     assert rc == 0, err
     doc = json.loads(out)
     assert doc["status"]["ok"] is True
-    assert doc["labels"]["correction_method"] == "curve"
-    r = doc["results"]
+    assert doc["correction_method"] == "curve"
+    r = doc
     m = json.loads(EXAMPLES["kr-gt3-liquid-fuel.json"].read_text())["measurements"]
     # HR = 3600 m_f LHV / P with the given LHV (common practice definition)
     assert r["heat_rate_kJ_per_kWh"] == pytest.approx(
@@ -153,8 +155,8 @@ def test_batch_example_jsonl_in_jsonl_out(capsys: pytest.CaptureFixture[str]) ->
     assert [d["line"] for d in docs] == list(range(1, len(ids_in) + 1))
     assert all(d["status"]["ok"] for d in docs)
     for d in docs:
-        assert 0.84 <= d["results"]["compressor_isentropic_efficiency"] <= 0.89  # common practice
-        assert 8600.0 <= d["results"]["heat_rate_kJ_per_kWh"] <= 11000.0  # common practice
+        assert 0.84 <= d["compressor_isentropic_efficiency"] <= 0.89  # common practice
+        assert 8600.0 <= d["heat_rate_kJ_per_kWh"] <= 11000.0  # common practice
 
 
 def test_errors_example_reports_each_mistake(capsys: pytest.CaptureFixture[str]) -> None:
@@ -174,7 +176,7 @@ def test_errors_example_reports_each_mistake(capsys: pytest.CaptureFixture[str])
     ]
     for i, (doc, expected) in enumerate(zip(docs[1:], expected_paths, strict=True), start=2):
         assert any(e.startswith(expected) for e in doc["status"]["errors"]), doc["status"]
-        assert all(v is None for v in doc["results"].values())
+        assert all(doc[n] is None for n in RESULT_NAMES)
         assert re.search(rf"^record {i} \(id .*\): {re.escape(expected)}", err, re.M), err
 
 
@@ -201,9 +203,9 @@ def test_mixed_list_keeps_order_and_computes_the_good_ones(
     assert [d["record"] for d in docs] == [1, 2, 3, 4]
     assert [d["status"]["ok"] for d in docs] == [True, False, True, False]
     assert docs[1]["id"] == "bad pressure"
-    assert docs[2]["results"]["compressor_isentropic_efficiency"] is not None
+    assert docs[2]["compressor_isentropic_efficiency"] is not None
     # a lower generator efficiency means more shaft power for the same generator power
-    assert docs[2]["results"]["shaft_power"] > docs[0]["results"]["shaft_power"]
+    assert docs[2]["shaft_power"] > docs[0]["shaft_power"]
     assert (
         'record 2 (id "bad pressure"): measurements.compressor_discharge_pressure: must be > '
         "compressor_inlet_pressure (got 101000 Pa ≤ 101325 Pa)" in err
@@ -222,7 +224,7 @@ def test_nan_literal_is_rejected(
     assert rc == calc.EXIT_INVALID
     doc = json.loads(out)  # our own output is strict JSON
     assert doc["status"]["ok"] is False
-    assert all(v is None for v in doc["results"].values())
+    assert all(doc[n] is None for n in RESULT_NAMES)
     assert "measurements.fuel_mass_flow: NaN/Infinity is not JSON" in err
 
 
@@ -262,7 +264,7 @@ def test_table_format_plain_text_engineering_units(
     assert "second: error: measurements.compressor_discharge_temperature" in out
     # the turbine inlet temperature row in °C equals the JSON value in K minus 273.15
     rc, js, _ = cli(["-"], capsys, monkeypatch, json.dumps(snapshot()))
-    t3 = json.loads(js)["results"]["turbine_inlet_temperature"]
+    t3 = json.loads(js)["turbine_inlet_temperature"]
     row = next(line for line in out.splitlines() if "turbine_inlet_temperature " in line)
     cells = [c.strip() for c in row.strip("|").split("|")]
     assert cells[1] == "°C"
@@ -270,7 +272,7 @@ def test_table_format_plain_text_engineering_units(
     assert cells[3] == "—"  # the rejected record
     power = next(line for line in out.splitlines() if line.startswith("| shaft_power "))
     mw = float(power.strip("|").split("|")[2].replace(",", ""))
-    assert mw == pytest.approx(json.loads(js)["results"]["shaft_power"] / 1e6, abs=0.005)
+    assert mw == pytest.approx(json.loads(js)["shaft_power"] / 1e6, abs=0.005)
 
 
 def test_output_file(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
@@ -307,10 +309,10 @@ def test_record_the_model_cannot_balance_exits_1_with_its_reason(
     assert doc["status"]["ok"] is False
     assert doc["status"]["errors"] == []  # accepted by the contract ...
     assert "energy_balance_infeasible" in doc["status"]["reasons"]  # ... refused by the model
-    assert doc["results"]["air_mass_flow"] is None
-    assert doc["results"]["turbine_inlet_temperature"] is None
+    assert doc["air_mass_flow"] is None
+    assert doc["turbine_inlet_temperature"] is None
     # the compressor needs no heat balance and is still reported
-    assert doc["results"]["compressor_isentropic_efficiency"] is not None
+    assert doc["compressor_isentropic_efficiency"] is not None
     assert "not fully computable: energy_balance_infeasible" in err
 
 
@@ -431,7 +433,7 @@ def test_batch_is_computed_once_per_group_and_matches_single_records(
         want = json.loads(capsys.readouterr().out)
         assert single.calls == [1]
         for name in RESULT_NAMES:
-            a, b = got["results"][name], want["results"][name]
+            a, b = got[name], want[name]
             assert (a is None) == (b is None), name
             if a is not None:
                 np.testing.assert_allclose(a, b, rtol=1e-9, atol=1e-9, err_msg=name)

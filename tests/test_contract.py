@@ -99,7 +99,7 @@ def test_contract_keys_are_the_published_ones() -> None:
     assert set(c.record.model_fields) == {
         "id",
         "timestamp",
-        "unit",
+        "unit_type",
         "measurements",
         "fuel",
         "parameters",
@@ -388,9 +388,9 @@ def test_all_problems_of_a_record_are_reported_at_once() -> None:
 
 def test_unknown_unit_type_is_rejected() -> None:
     rec = example()
-    rec["unit"] = "gas_turbin"
+    rec["unit_type"] = "gas_turbin"
     (msg,) = errors_of(rec)
-    assert msg.startswith("unit: unknown unit type 'gas_turbin' (did you mean 'gas_turbine'?)")
+    assert msg.startswith("unit_type: unknown unit type 'gas_turbin' (did you mean 'gas_turbine'?)")
 
 
 # ------------------------------------------------------------------------------------------
