@@ -21,6 +21,7 @@ COMMANDS: dict[str, str] = {
     "db": "daemon.db_cmd",
     "bench": "daemon.bench",
     "demo": "daemon.demo_cmd",
+    "bench-live": "daemon.bench_live",
     "run": "daemon.run_cmd",
 }
 
