@@ -358,19 +358,39 @@ class _Fluid:
             np.clip(T, 100.0, 5000.0, out=T)
         return T, np.abs(dT) < _TOL
 
+    def h_at(self, T: FloatArray, vc: list[Num]) -> FloatArray:
+        """h(T, p) with the departure coefficients ``vc = _virial_coeffs(_HR_B, _HR_C, p)``."""
+        v = _poly(vc, _V_T / T)
+        v *= T
+        v *= self.R
+        v += self._eval(_H, T)
+        return v
+
     def isentropic_T(
-        self, T1: FloatArray, p1: Num, p2: Num
+        self,
+        T1: FloatArray,
+        p1: Num,
+        p2: Num,
+        guess: FloatArray | None = None,
+        *,
+        lnpr: Num | None = None,
+        phi1: FloatArray | None = None,
     ) -> tuple[FloatArray, NDArray[np.bool_]]:
-        """T2s with s(T2s, p2) = s(T1, p1), real gas at both ends."""
-        lnpr = np.log(p2 / p1)
-        target, cp1 = self._eval2(_PHI, T1, True)
+        """T2s with s(T2s, p2) = s(T1, p1), real gas at both ends.
+
+        ``lnpr = ln(p2/p1)`` and the ideal-gas ``phi1 = phi(T1)`` may be passed if known.
+        """
+        Rl = self.R * (np.log(p2 / p1) if lnpr is None else lnpr)
+        if guess is None:
+            target, cp1 = self._eval2(_PHI, T1, True)
+            # first guess with cp at T1, second with cp at the mean temperature
+            guess = T1 * np.exp(Rl / cp1)
+            guess = T1 * np.exp(Rl / self.cp(0.5 * (T1 + guess)))
+        else:
+            target = self.phi(T1) if phi1 is None else phi1
         target = target + self.R * _sr(T1, p1)
-        Rl = self.R * lnpr
         target += Rl
-        # first guess with cp at T1, second with cp at the mean temperature
-        guess = T1 * np.exp(Rl / cp1)
-        guess = T1 * np.exp(Rl / self.cp(0.5 * (T1 + guess)))
-        return self.T_from_phi(target, p2, guess)
+        return self.T_from_phi(target, p2, np.asarray(guess, dtype=np.float64))
 
 
 def _air_fluid(y_w: Num) -> _Fluid:
@@ -587,13 +607,19 @@ def _chunk(
     T2c = np.where(not_hot, T1 + 300.0, T2)
     p2c = np.where(pr_bad, p1 * 15.0, p2)
     PR = p2c / p1
-    T2s, conv = air.isentropic_T(T1, p1, p2c)
+    lnPR = np.log(PR)
+    phi1, cp1 = air._eval2(_PHI, T1, True)
+    Rl = R_a * lnPR
+    guess = T1 * np.exp(Rl / cp1)
+    guess = T1 * np.exp(Rl / air.cp(0.5 * (T1 + guess)))
+    T2s, conv = air.isentropic_T(T1, p1, p2c, guess, lnpr=lnPR, phi1=phi1)
     h1 = air.h(T1, p1)
-    h2 = air.h(T2c, p2c)
-    h2s = air.h(T2s, p2c)
+    vc2 = _virial_coeffs(_HR_B, _HR_C, p2c)
+    h2 = air.h_at(T2c, vc2)
+    h2s = air.h_at(T2s, vc2)
     w_c = h2 - h1
     eta_c = (h2s - h1) / w_c
-    eta_p = R_a * np.log(PR) / (air.phi(T2c) - air.phi(T1))
+    eta_p = Rl / (air.phi(T2c) - phi1)
     g_c = g_amb | bT1 | bp1 | bT2 | bp2 | not_hot | pr_bad
     _flag(st, ~conv & ~g_c, Reason.NOT_CONVERGED)
     g_c |= ~conv
@@ -669,7 +695,7 @@ def _chunk(
     g_gen = g_fp | bpar_gen
 
     # ---- comparison cycles ------------------------------------------------------------------
-    eta_B = 1.0 - PR ** (-0.4 / 1.4)
+    eta_B = 1.0 - np.exp(lnPR * (-0.4 / 1.4))
     carnot = 1.0 - T1 / T3
     # ideal cycle on the real fluid: isentropic machines, no losses, expansion to p1
     hr3i = _hr(T3, p2c)
@@ -678,7 +704,7 @@ def _chunk(
     f_i = (ha3 - h2s) / (hf + lhv - hpd3)
     f_i = np.where(g_cb | ~(f_i > 0) | ~(f_i < f_st), 0.02, f_i)
     gas_i = air.with_part(fd.tab, f_i, fd.R)
-    T4si, conv_i = gas_i.isentropic_T(T3, p2c, p1)
+    T4si, conv_i = gas_i.isentropic_T(T3, p2c, p1, guess=T4s * ((p1 * p3) / (p2c * p4c)) ** 0.25)
     H3i = ha3 + f_i * hpd3
     w_net_i = (H3i - gas_i.h(T4si, p1)) - (h2s - h1)
     eta_i = w_net_i / (f_i * lhv)
@@ -691,7 +717,7 @@ def _chunk(
         P_ref, HR_ref, ok_ref = _forward_reference(
             T1=T1, p0=p0, p1=p1, p4=p4c, PR=PR, ma=ma, eta_c=eta_c, T3=T3, eta_t=eta_t,
             hf=hf, lhv=lhv, fd=fd, eta_b=eta_b, closs=closs, dp=dp, eta_gen=eta_gen,
-            pmech=pmech,
+            pmech=pmech, T2s=T2s, T4s=T4s,
         )  # fmt: skip
         HR_model = 3600.0 * Q_in / P_model
         P_corr_m = P * P_ref / P_model
@@ -708,7 +734,8 @@ def _chunk(
     def put(name: str, v: Num, bad: NDArray[np.bool_]) -> None:
         dst = out[name]
         np.copyto(dst, v)
-        np.copyto(dst, np.nan, where=bad)
+        if bad.any():
+            np.copyto(dst, np.nan, where=bad)
 
     put("compressor_pressure_ratio", PR, g_pr)
     put("compressor_isentropic_efficiency", eta_c, g_c)
@@ -760,8 +787,13 @@ def _forward_reference(
     dp: Num,
     eta_gen: Num,
     pmech: Num,
+    T2s: FloatArray,
+    T4s: FloatArray,
 ) -> tuple[FloatArray, FloatArray, NDArray[np.bool_]]:
-    """Generator power and heat rate at reference ambient under the control law."""
+    """Generator power and heat rate at reference ambient under the control law.
+
+    ``T2s`` and ``T4s`` of the measured cycle seed the Newton solves.
+    """
     T1r = REFERENCE_TEMPERATURE
     p1r = REFERENCE_PRESSURE * (p1 / p0)
     p4r = REFERENCE_PRESSURE * (p4 / p0)
@@ -801,6 +833,10 @@ def _forward_reference(
         pmech=pmech,
         temperatures=False,
         status=st,
+        guesses=(
+            T2s * (T1r / T1) ** 0.72,  # T2s ∝ T1 r^0.28 and r ∝ T1
+            T4s * (T1r / T1) ** 0.25,  # T4s ∝ (p4/p3)^0.25
+        ),
     )
     P = res["generator_power"]
     HR = 3600.0 * res["fuel_mass_flow"] * lhv / P
@@ -830,10 +866,12 @@ def _forward_core(
     pmech: Num,
     temperatures: bool,
     status: StatusArray,
+    guesses: tuple[FloatArray, FloatArray] | None = None,
 ) -> dict[str, FloatArray]:
     """Forward cycle: component health and operating point -> sensor values."""
+    g2, g4 = (None, None) if guesses is None else guesses
     T3a = np.broadcast_to(np.asarray(T3, dtype=np.float64), np.broadcast(T1, p2, T3).shape)
-    T2s, c1 = air.isentropic_T(T1, p1, p2)
+    T2s, c1 = air.isentropic_T(T1, p1, p2, guess=g2)
     h1 = air.h(T1, p1)
     h2 = h1 + (air.h(T2s, p2) - h1) / eta_c
     p3 = p2 * (1.0 - dp)
@@ -848,7 +886,7 @@ def _forward_core(
     f = np.where(bad_f, 0.02, f)
     gasf = air.with_part(fd.tab, f, fd.R)
     H3 = ha3 + f * hpd3
-    T4s, c2 = gasf.isentropic_T(T3a, p3, p4)
+    T4s, c2 = gasf.isentropic_T(T3a, p3, p4, guess=g4)
     H4 = H3 - eta_t * (H3 - gasf.h(T4s, p4))
     P_shaft = np.asarray(ma) * (H3 - H4 - (h2 - h1))
     P_gen = np.asarray(eta_gen * (P_shaft - pmech))
