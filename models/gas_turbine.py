@@ -748,7 +748,7 @@ def _chunk(
     put("fuel_air_ratio", f, g_f)
     put("exhaust_mass_flow", ma + mf, g_f)
     put("turbine_inlet_temperature", T3, g_cb)
-    put("turbine_inlet_pressure", p3, bp2 | bpar_cb)
+    put("turbine_inlet_pressure", p2 * (1.0 - dp), bp2 | bpar_cb)
     put("turbine_isentropic_efficiency", eta_t, g_t)
     put("turbine_isentropic_exhaust_temperature", T4s, g_t)
     put("turbine_power", W_t, g_t)
