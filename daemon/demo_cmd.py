@@ -360,13 +360,13 @@ class SummaryRow:
 
     HEADERS = (
         "unit",
-        "time (UTC)",
-        "load MW",
+        "UTC",
+        "MW",
         "η_c",
         "η_t",
         "TIT °C",
-        "heat rate kJ/kWh",
-        "corr. MW",
+        "HR kJ/kWh",
+        "corr MW",
         "steady",
         "status",
     )
@@ -421,13 +421,22 @@ def summary_row(unit: str, row: Mapping[str, Any] | None) -> SummaryRow:
 
 def render_table(rows: list[SummaryRow], title: str, footer: str) -> Any:
     """A rich renderable of the summary rows with the caution line under it."""
+    from rich import box
     from rich.console import Group
     from rich.table import Table
     from rich.text import Text
 
-    table = Table(title=title, title_justify="left", expand=False)
-    for h in SummaryRow.HEADERS:
-        table.add_column(h, justify="left" if h in ("unit", "status") else "right")
+    table = Table(title=title, title_justify="left", expand=False, box=box.SIMPLE_HEAD)
+    cells = [r.cells() for r in rows]
+    for i, h in enumerate(SummaryRow.HEADERS):
+        if h == "status":
+            table.add_column(h, justify="left", overflow="fold")
+            continue
+        width = max([len(h), *(len(c[i]) for c in cells)])
+        if h == "unit":
+            table.add_column(h, justify="left", no_wrap=True, min_width=width)
+        else:
+            table.add_column(h, justify="right", no_wrap=True, min_width=width)
     for r in rows:
         table.add_row(*r.cells())
     return Group(table, Text(footer, style="dim"), Text(CAUTION, style="bold"))
@@ -634,8 +643,9 @@ async def run_demo(opts: DemoOptions, out: Any = None) -> int:
     plain = opts.plain if opts.plain is not None else not out.isatty()
     title = f"{plant.site.name} — latest result per unit"
     footer = (
-        f"tick {plant.daemon.tick_s:g} s · η_c/η_t isentropic · TIT heat-balance turbine inlet "
-        "temperature · heat rate LHV basis · Ctrl-C to stop"
+        f"tick {plant.daemon.tick_s:g} s · MW generator power · η_c/η_t isentropic · TIT "
+        "heat-balance turbine inlet temperature · HR heat rate (LHV) · corr MW corrected "
+        "power · Ctrl-C to stop"
     )
     started = time.monotonic()
     code = 0
