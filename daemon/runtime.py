@@ -193,9 +193,12 @@ class Runtime:
         tls = tls_context_for(plant.broker, base_dir)
         password = plant.broker.password
         secret = password.get_secret_value() if password is not None else None
+        self.filters: list[str] = list(plant.subscriptions())
+        self._check_own_topics()
         self.feed = MqttFeed(
             plant.broker,
             self.decoder,
+            filters=self.filters,
             commit=self._commit,
             stats=self.metrics,
             username=plant.broker.username or None,
@@ -227,6 +230,22 @@ class Runtime:
         self.ticks = 0
         self.last_results: dict[str, Result] = {}
         self._warn_missing_columns()
+
+    def _check_own_topics(self) -> None:
+        from paho.mqtt.client import topic_matches_sub
+
+        prefix = self.plant.daemon.results_topic_prefix
+        own = [result_topic(prefix, u) for u in self.plant.units]
+        own.append(f"{prefix.rstrip('/')}/status")
+        hits = sorted({f for f in self.filters for t in own if topic_matches_sub(f, t)})
+        if hits:
+            log.warning(
+                "subscription filters %s also match the daemon's own result topics under %r: "
+                "its own messages come back and are quarantined as unknown_topic; choose a "
+                "results_topic_prefix outside the plant's topic tree",
+                hits,
+                prefix,
+            )
 
     def _warn_missing_columns(self) -> None:
         for b in {b.unit_type.name: b for b in self.bindings.values()}.values():
