@@ -536,14 +536,43 @@ def _water_mass_fraction(
     return np.asarray(mw / (mw + (1.0 - xw) * _M_DRY))
 
 
+_MODEL_OF = {
+    "corrected_power": "corrected_power_model",
+    "corrected_heat_rate_kJ_per_kWh": "corrected_heat_rate_model_kJ_per_kWh",
+}
+_CURVE_RESULTS = ("corrected_power_curve", "corrected_heat_rate_curve_kJ_per_kWh")
+
+
+@dataclass(frozen=True)
+class _RefAmbient:
+    """Constants of the reference ambient, computed once per call."""
+
+    y_w: float  # water mass fraction of reference humid air
+    air: _Fluid  # reference humid air (scalar coefficient rows, cached across chunks)
+
+
+def _reference_ambient() -> _RefAmbient:
+    y_w = float(
+        _water_mass_fraction(
+            np.array(REFERENCE_TEMPERATURE),
+            np.array(REFERENCE_PRESSURE),
+            np.array(REFERENCE_RELATIVE_HUMIDITY),
+            np.zeros((), dtype=np.uint32),
+        )
+    )
+    return _RefAmbient(y_w, _air_fluid(y_w))
+
+
 def _chunk(
     m: Mapping[str, FloatArray],
-    par: Mapping[str, FloatArray],
+    par: Mapping[str, Num],
     *,
     fd: _FuelData,
     h_f: FloatArray,
     have_ma: NDArray[np.bool_],
-    do_model: bool,
+    ref: _RefAmbient,
+    model_selected: bool,
+    curve: bool,
     out: dict[str, FloatArray],
     status: StatusArray,
 ) -> None:
@@ -574,9 +603,11 @@ def _chunk(
         par["casing_heat_loss_fraction"],
         par["mechanical_loss"],
     )
-    bpar_gen = ~((eta_gen > 0) & (eta_gen <= 1)) | ~(pmech >= 0)
-    bpar_cb = (
-        ~((eta_b > 0) & (eta_b <= 1)) | ~((closs >= 0) & (closs < 1)) | ~((dp >= 0) & (dp < 1))
+    a_gen, a_dp, a_b, a_cl, a_pm = (np.asarray(v) for v in (eta_gen, dp, eta_b, closs, pmech))
+    bpar_gen = np.broadcast_to(~((a_gen > 0) & (a_gen <= 1)) | ~(a_pm >= 0), (n,))
+    bpar_cb = np.broadcast_to(
+        ~((a_b > 0) & (a_b <= 1)) | ~((a_cl >= 0) & (a_cl < 1)) | ~((a_dp >= 0) & (a_dp < 1)),
+        (n,),
     )
     _flag(st, bpar_gen | bpar_cb, Reason.INPUT_NONPHYSICAL)
     bfuel = ~fd.valid
@@ -713,19 +744,16 @@ def _chunk(
     # ---- corrections ------------------------------------------------------------------------
     P_model = eta_gen * (W_t - W_c - pmech)
     g_model = g_t | g_gen | ~(P_model > 0)
-    if do_model:
-        P_ref, HR_ref, ok_ref = _forward_reference(
-            T1=T1, p0=p0, p1=p1, p4=p4c, PR=PR, ma=ma, eta_c=eta_c, T3=T3, eta_t=eta_t,
-            hf=hf, lhv=lhv, fd=fd, eta_b=eta_b, closs=closs, dp=dp, eta_gen=eta_gen,
-            pmech=pmech, T2s=T2s, T4s=T4s,
-        )  # fmt: skip
-        HR_model = 3600.0 * Q_in / P_model
-        P_corr_m = P * P_ref / P_model
-        HR_corr_m = HR * HR_ref / HR_model
-        bad_m = g_model | ~ok_ref
-        _flag(st, bad_m & ~g_model, Reason.CORRECTION_UNAVAILABLE)
-        out["corrected_power_model"][:] = np.where(bad_m, np.nan, P_corr_m)
-        out["corrected_heat_rate_model_kJ_per_kWh"][:] = np.where(bad_m, np.nan, HR_corr_m)
+    P_ref, HR_ref, ok_ref = _forward_reference(
+        ref=ref, T1=T1, p0=p0, p1=p1, p4=p4c, PR=PR, ma=ma, eta_c=eta_c, T3=T3, eta_t=eta_t,
+        hf=hf, lhv=lhv, fd=fd, eta_b=eta_b, closs=closs, dp=dp, eta_gen=eta_gen,
+        pmech=pmech, T2s=T2s, T4s=T4s,
+    )  # fmt: skip
+    HR_model = 3600.0 * Q_in / P_model
+    P_corr_m = P * P_ref / P_model
+    HR_corr_m = HR * HR_ref / HR_model
+    bad_m = g_model | ~ok_ref
+    _flag(st, bad_m & ~g_model, Reason.CORRECTION_UNAVAILABLE)
 
     # ---- closure, outputs ---------------------------------------------------------------------
     closure = (P_shaft + closs * Q_in + ma * H4 - ma * h1 - mf * (hf + eta_b * lhv)) / Q_in
@@ -762,14 +790,21 @@ def _chunk(
     put("ideal_cycle_efficiency", eta_i, g_i)
     put("carnot_efficiency", carnot, g_cb)
     put("heat_balance_closure", closure, g_clos)
-    out["_T1"][:] = T1
-    out["_p0"][:] = p0
-    out["_RH"][:] = RH
-    out["_curve_bad"][:] = (bT1 | bp0 | bRH | g_fp).astype(np.float64)
+    put("corrected_power_model", P_corr_m, bad_m)
+    put("corrected_heat_rate_model_kJ_per_kWh", HR_corr_m, bad_m)
+    if model_selected:
+        for k in ("corrected_power", "corrected_heat_rate_kJ_per_kWh"):
+            np.copyto(out[k], out[_MODEL_OF[k]])
+    if curve:
+        out["_T1"][:] = T1
+        out["_p0"][:] = p0
+        out["_RH"][:] = RH
+        out["_curve_bad"][:] = bT1 | bp0 | bRH | g_fp
 
 
 def _forward_reference(
     *,
+    ref: _RefAmbient,
     T1: FloatArray,
     p0: FloatArray,
     p1: FloatArray,
@@ -806,15 +841,9 @@ def _forward_reference(
         reference_inlet_pressure=p1r,
     )
     st = np.zeros(T1.shape, dtype=np.uint32)
-    y_w = _water_mass_fraction(
-        np.array(REFERENCE_TEMPERATURE),
-        np.array(REFERENCE_PRESSURE),
-        np.array(REFERENCE_RELATIVE_HUMIDITY),
-        np.zeros((), dtype=np.uint32),
-    )
     res = _forward_core(
-        air=_air_fluid(float(y_w)),
-        y_w=float(y_w),
+        air=ref.air,
+        y_w=ref.y_w,
         T1=np.asarray(T1r),
         p1=p1r,
         p2=PRr * p1r,
@@ -926,6 +955,12 @@ _MEAS_KEYS = {
     "fuel_mass_flow": "mf",
     "generator_power": "P",
 }
+
+
+def _par(v: ArrayLike, n: int) -> Num:
+    """A unit parameter: a Python float when scalar, else an array of shape (N,)."""
+    a = np.asarray(v, dtype=np.float64)
+    return float(a) if a.ndim == 0 else _arr(a, n)
 
 
 def _arr(v: ArrayLike | None, n: int, default: float = np.nan) -> FloatArray:
@@ -1059,11 +1094,11 @@ def reconstruct(
     Tf = np.where(np.isnan(Tf), DEFAULT_FUEL_TEMPERATURE, Tf)
     m["Tf"] = Tf
     par = {
-        "generator_efficiency": _arr(generator_efficiency, n),
-        "combustor_pressure_loss": _arr(combustor_pressure_loss, n),
-        "combustion_efficiency": _arr(combustion_efficiency, n),
-        "casing_heat_loss_fraction": _arr(casing_heat_loss_fraction, n),
-        "mechanical_loss": _arr(mechanical_loss, n),
+        "generator_efficiency": _par(generator_efficiency, n),
+        "combustor_pressure_loss": _par(combustor_pressure_loss, n),
+        "combustion_efficiency": _par(combustion_efficiency, n),
+        "casing_heat_loss_fraction": _par(casing_heat_loss_fraction, n),
+        "mechanical_loss": _par(mechanical_loss, n),
     }
     fd = _fuel_data(fuel, n)
     ok_T = (Tf >= gas.T_MIN) & (Tf <= gas.T_MAX)
@@ -1073,44 +1108,54 @@ def reconstruct(
     method = correction_method
     if method == "auto":
         method = "curve" if corrections is not None else "model"
-    do_model = True
-    names = (*_RESULTS, "_T1", "_p0", "_RH", "_curve_bad")
+    curve = corrections is not None  # curve inputs are kept only when there are curves
+    names = [k for k in _RESULTS if k not in _CURVE_RESULTS]
+    if curve:
+        names += ["_T1", "_p0", "_RH", "_curve_bad"]
     out = {k: np.empty(n) for k in names}
-    out["corrected_power_model"].fill(np.nan)
-    out["corrected_heat_rate_model_kJ_per_kWh"].fill(np.nan)
     status = np.zeros(n, dtype=np.uint32)
     step = max(int(chunk_size), 1)
+    ref = _reference_ambient()
+    # scalar parameters stay Python floats (same arithmetic, no per-chunk slicing)
     with np.errstate(all="ignore"):
         for i0 in range(0, n, step):
             sl = slice(i0, min(i0 + step, n))
             _chunk(
                 {k: v[sl] for k, v in m.items()},
-                {k: v[sl] for k, v in par.items()},
+                {k: v if isinstance(v, float) else v[sl] for k, v in par.items()},
                 fd=fd.take(sl),
                 h_f=h_f[sl],
                 have_ma=have_ma[sl],
-                do_model=do_model,
+                ref=ref,
+                model_selected=method != "curve",
+                curve=curve,
                 out={k: v[sl] for k, v in out.items()},
                 status=status[sl],
             )
-        Pc, HRc, st_c = curve_correction(
-            corrections,
-            compressor_inlet_temperature=out["_T1"],
-            ambient_pressure=out["_p0"],
-            ambient_relative_humidity=out["_RH"],
-            power=m["P"],
-            heat_rate=out["heat_rate_kJ_per_kWh"],
-        )
-    curve_bad = out.pop("_curve_bad") > 0
-    for k in ("_T1", "_p0", "_RH"):
-        out.pop(k)
-    out["corrected_power_curve"] = np.where(curve_bad, np.nan, Pc)
-    out["corrected_heat_rate_curve_kJ_per_kWh"] = np.where(curve_bad, np.nan, HRc)
+        if curve:
+            Pc, HRc, st_c = curve_correction(
+                corrections,
+                compressor_inlet_temperature=out.pop("_T1"),
+                ambient_pressure=out.pop("_p0"),
+                ambient_relative_humidity=out.pop("_RH"),
+                power=m["P"],
+                heat_rate=out["heat_rate_kJ_per_kWh"],
+            )
+            curve_bad = out.pop("_curve_bad") > 0
+            out["corrected_power_curve"] = np.where(curve_bad, np.nan, Pc)
+            out["corrected_heat_rate_curve_kJ_per_kWh"] = np.where(curve_bad, np.nan, HRc)
+            if method == "curve":
+                status |= st_c & np.uint32(Reason.CORRECTION_UNAVAILABLE)
+        else:
+            # curve_correction(None, ...): NaN and CORRECTION_UNAVAILABLE everywhere
+            out["corrected_power_curve"] = np.full(n, np.nan)
+            out["corrected_heat_rate_curve_kJ_per_kWh"] = np.full(n, np.nan)
+            if method == "curve":
+                status |= np.uint32(Reason.CORRECTION_UNAVAILABLE)
     if method == "curve":
-        status |= st_c & np.uint32(Reason.CORRECTION_UNAVAILABLE)
-    src = "curve" if method == "curve" else "model"
-    out["corrected_power"] = out[f"corrected_power_{src}"].copy()
-    out["corrected_heat_rate_kJ_per_kWh"] = out[f"corrected_heat_rate_{src}_kJ_per_kWh"].copy()
+        out["corrected_power"] = out["corrected_power_curve"].copy()
+        out["corrected_heat_rate_kJ_per_kWh"] = out["corrected_heat_rate_curve_kJ_per_kWh"].copy()
+    out = {k: out[k] for k in _RESULTS}  # the documented order
     source = np.where(have_ma, "measured", "heat_balance")
     return ComputeOutput(
         values=out,
