@@ -56,7 +56,7 @@ References
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import Any, Literal
 
@@ -119,6 +119,7 @@ _TOL = 0.03  # K: Newton step criterion; with quadratic convergence (C < 1e-3 /K
 # error after a step of 0.03 K is below 1e-5 K (checked in tests against a tight solve)
 _MAX_IT = 10
 _CHUNK = 4096
+_BLOCK = 8192  # elements per array operation (several chunks)
 
 
 def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
@@ -224,6 +225,62 @@ def _sr(T: FloatArray, p: Num) -> FloatArray:
     return _virial(_SR_B, _SR_C, T, p)
 
 
+#: Start indices of the convergence groups of a block (None: the block is one group).
+Groups = NDArray[np.intp] | None
+
+
+def _newton(
+    step: Callable[[FloatArray], FloatArray], T: FloatArray, groups: Groups
+) -> tuple[FloatArray, NDArray[np.bool_]]:
+    """Newton iteration ``T <- T - step(T)``; returns (T, converged).
+
+    Each convergence group (a chunk of ``chunk_size`` elements) stops on its own when its
+    largest step is below ``_TOL``, exactly as if it were solved alone: a block of several
+    groups gives element for element the numbers of one solve per group, with fewer,
+    longer array operations.  Groups that stop early keep their values while the others
+    go on.
+    """
+    if groups is None:
+        dT = step(T)
+        for it in range(_MAX_IT):
+            if it:
+                dT = step(T)
+            T = T - dT
+            if np.abs(dT).max() < _TOL:
+                break
+            np.clip(T, 100.0, 5000.0, out=T)
+        return T, np.abs(dT) < _TOL
+    active = np.ones(groups.size, dtype=bool)
+    sizes = np.diff(groups, append=T.size)
+    T_res: FloatArray | None = None
+    dT_res: FloatArray | None = None
+    dT = step(T)
+    for it in range(_MAX_IT):
+        if it:
+            dT = step(T)
+        T = T - dT
+        stop = active & (np.maximum.reduceat(np.abs(dT), groups) < _TOL)
+        if stop.any():
+            active &= ~stop
+            if not active.any() and T_res is None:
+                return T, np.abs(dT) < _TOL
+            if T_res is None or dT_res is None:
+                T_res, dT_res = T.copy(), dT.copy()
+            else:
+                lanes = np.repeat(stop, sizes)
+                np.copyto(T_res, T, where=lanes)
+                np.copyto(dT_res, dT, where=lanes)
+            if not active.any():
+                return T_res, np.abs(dT_res) < _TOL
+        np.clip(T, 100.0, 5000.0, out=T)
+    if T_res is None or dT_res is None:
+        return T, np.abs(dT) < _TOL
+    lanes = np.repeat(active, sizes)
+    np.copyto(T_res, T, where=lanes)
+    np.copyto(dT_res, dT, where=lanes)
+    return T_res, np.abs(dT_res) < _TOL
+
+
 class _Fluid:
     """A fluid whose mass-specific coefficient rows are ``base + sum(w_k * tab_k)``.
 
@@ -308,18 +365,18 @@ class _Fluid:
         return out
 
     def T_from_h(
-        self, H: FloatArray, p: Num | None, T: FloatArray
+        self, H: FloatArray, p: Num | None, T: FloatArray, groups: Groups = None
     ) -> tuple[FloatArray, NDArray[np.bool_]]:
         """Newton on h(T, p) = H from the guess T; returns (T, converged).
 
         The real-gas term enters the function, not the derivative (its share of cp is
         below 1e-3), so the last step's error is below 1e-3 of the step criterion.
         """
-        dT = np.full(T.shape, np.inf)
         vc = None if p is None else _virial_coeffs(_HR_B, _HR_C, p)
         # real-gas share of cp, frozen at the first guess (keeps Newton near-quadratic)
         cres = 0.0 if p is None else self.R * _virial(_CPR_B, _CPR_C, T, p)
-        for _ in range(_MAX_IT):
+
+        def step(T: FloatArray) -> FloatArray:
             dT, cp = self._eval2(_H, T, False)
             cp += cres
             if vc is not None:
@@ -329,20 +386,18 @@ class _Fluid:
                 dT += v
             dT -= H
             dT /= cp
-            T = T - dT
-            if np.max(np.abs(dT)) < _TOL:
-                break
-            np.clip(T, 100.0, 5000.0, out=T)
-        return T, np.abs(dT) < _TOL
+            return dT
+
+        return _newton(step, T, groups)
 
     def T_from_phi(
-        self, target: FloatArray, p: Num | None, T: FloatArray
+        self, target: FloatArray, p: Num | None, T: FloatArray, groups: Groups = None
     ) -> tuple[FloatArray, NDArray[np.bool_]]:
         """Newton on phi(T) + R s_res(T, p) = target from the guess T."""
-        dT = np.full(T.shape, np.inf)
         vc = None if p is None else _virial_coeffs(_SR_B, _SR_C, p)
         cres = 0.0 if p is None else self.R * _virial(_CPR_B, _CPR_C, T, p)
-        for _ in range(_MAX_IT):
+
+        def step(T: FloatArray) -> FloatArray:
             dT, cp = self._eval2(_PHI, T, True)
             cp += cres
             if vc is not None:
@@ -352,11 +407,9 @@ class _Fluid:
             dT -= target
             dT *= T
             dT /= cp
-            T = T - dT
-            if np.max(np.abs(dT)) < _TOL:
-                break
-            np.clip(T, 100.0, 5000.0, out=T)
-        return T, np.abs(dT) < _TOL
+            return dT
+
+        return _newton(step, T, groups)
 
     def h_at(self, T: FloatArray, vc: list[Num]) -> FloatArray:
         """h(T, p) with the departure coefficients ``vc = _virial_coeffs(_HR_B, _HR_C, p)``."""
@@ -375,6 +428,7 @@ class _Fluid:
         *,
         lnpr: Num | None = None,
         phi1: FloatArray | None = None,
+        groups: Groups = None,
     ) -> tuple[FloatArray, NDArray[np.bool_]]:
         """T2s with s(T2s, p2) = s(T1, p1), real gas at both ends.
 
@@ -390,7 +444,7 @@ class _Fluid:
             target = self.phi(T1) if phi1 is None else phi1
         target = target + self.R * _sr(T1, p1)
         target += Rl
-        return self.T_from_phi(target, p2, np.asarray(guess, dtype=np.float64))
+        return self.T_from_phi(target, p2, np.asarray(guess, dtype=np.float64), groups)
 
 
 def _air_fluid(y_w: Num) -> _Fluid:
@@ -428,6 +482,20 @@ def _fuel_data(fuel: FuelProperties, n: int) -> _FuelData:
     o2 = np.asarray(-pd[..., INDEX["O2"]])
     valid = np.asarray(np.isfinite(lhv) & (lhv > 0) & np.isfinite(hhv) & (o2 > 0))
     return _FuelData(lhv, hhv, tab, R, o2, valid)
+
+
+@dataclass(frozen=True)
+class _FuelHeat:
+    """A single fuel whose sensible enthalpy each chunk evaluates itself."""
+
+    fuel: FuelProperties
+    zero: bool  # every fuel temperature used is 298.15 K: h_f = 0 exactly
+
+
+def _fuel_T_used(Tf: FloatArray) -> FloatArray:
+    """Fuel temperature the enthalpy is evaluated at: default for NaN, 298.15 K if invalid."""
+    T = np.where(np.isnan(Tf), DEFAULT_FUEL_TEMPERATURE, Tf)
+    return np.where((T >= gas.T_MIN) & (T <= gas.T_MAX), T, gas.T_REF)
 
 
 def _fuel_enthalpy(fuel: FuelProperties, Tf: FloatArray) -> FloatArray:
@@ -568,16 +636,27 @@ def _chunk(
     par: Mapping[str, Num],
     *,
     fd: _FuelData,
-    h_f: FloatArray,
+    h_f: FloatArray | _FuelHeat,
     have_ma: NDArray[np.bool_],
     ref: _RefAmbient,
     model_selected: bool,
     curve: bool,
+    groups: Groups,
     out: dict[str, FloatArray],
     status: StatusArray,
 ) -> None:
     n = status.shape[0]
     st = status
+    if isinstance(h_f, _FuelHeat):
+        m = dict(m)
+        nan_Tf = np.isnan(m["Tf"])
+        if nan_Tf.any():
+            m["Tf"] = np.where(nan_Tf, DEFAULT_FUEL_TEMPERATURE, m["Tf"])
+        h_f = (
+            np.zeros(n)
+            if h_f.zero
+            else np.asarray(h_f.fuel.sensible_enthalpy(_fuel_T_used(m["Tf"])), dtype=np.float64)
+        )
     # ---- input checks, per quantity -------------------------------------------------------
     Tr = (gas.T_MIN, gas.T_MAX)
     pr = (0.0, gas.P_MAX_REAL)
@@ -643,7 +722,7 @@ def _chunk(
     Rl = R_a * lnPR
     guess = T1 * np.exp(Rl / cp1)
     guess = T1 * np.exp(Rl / air.cp(0.5 * (T1 + guess)))
-    T2s, conv = air.isentropic_T(T1, p1, p2c, guess, lnpr=lnPR, phi1=phi1)
+    T2s, conv = air.isentropic_T(T1, p1, p2c, guess, lnpr=lnPR, phi1=phi1, groups=groups)
     h1 = air.h(T1, p1)
     vc2 = _virial_coeffs(_HR_B, _HR_C, p2c)
     h2 = air.h_at(T2c, vc2)
@@ -690,7 +769,7 @@ def _chunk(
     gasf = air.with_part(fd.tab, f, fd.R)
     H3 = h2 + f * q_net  # per kg air
     T3g = T2c + f * q_net / ((1.0 + f) * 1290.0)
-    T3, conv3 = gasf.T_from_h(H3, p3, np.clip(T3g, 300.0, 2900.0))
+    T3, conv3 = gasf.T_from_h(H3, p3, np.clip(T3g, 300.0, 2900.0), groups)
     g_cb = g_c | g_f | bTf | bpar_cb
     t3_oor = ~g_cb & ~((T3 >= gas.T_MIN) & (T3 <= gas.T_MAX))
     _flag(st, t3_oor, Reason.TEMPERATURE_OUT_OF_RANGE)
@@ -702,7 +781,7 @@ def _chunk(
     t_pr_bad = ~(p3 > p4)
     _flag(st, t_pr_bad & ~(g_cb | bp4), Reason.PRESSURE_RATIO_INVALID)
     p4c = np.where(t_pr_bad, p3 / 10.0, p4)
-    T4s, conv4 = gasf.isentropic_T(T3, p3, p4c)
+    T4s, conv4 = gasf.isentropic_T(T3, p3, p4c, groups=groups)
     H4 = h4a + f * h4pd
     H4s = gasf.h(T4s, p4c)
     eta_t = (H3 - H4) / (H3 - H4s)
@@ -735,7 +814,8 @@ def _chunk(
     f_i = (ha3 - h2s) / (hf + lhv - hpd3)
     f_i = np.where(g_cb | ~(f_i > 0) | ~(f_i < f_st), 0.02, f_i)
     gas_i = air.with_part(fd.tab, f_i, fd.R)
-    T4si, conv_i = gas_i.isentropic_T(T3, p2c, p1, guess=T4s * ((p1 * p3) / (p2c * p4c)) ** 0.25)
+    g4i = T4s * ((p1 * p3) / (p2c * p4c)) ** 0.25
+    T4si, conv_i = gas_i.isentropic_T(T3, p2c, p1, guess=g4i, groups=groups)
     H3i = ha3 + f_i * hpd3
     w_net_i = (H3i - gas_i.h(T4si, p1)) - (h2s - h1)
     eta_i = w_net_i / (f_i * lhv)
@@ -747,7 +827,7 @@ def _chunk(
     P_ref, HR_ref, ok_ref = _forward_reference(
         ref=ref, T1=T1, p0=p0, p1=p1, p4=p4c, PR=PR, ma=ma, eta_c=eta_c, T3=T3, eta_t=eta_t,
         hf=hf, lhv=lhv, fd=fd, eta_b=eta_b, closs=closs, dp=dp, eta_gen=eta_gen,
-        pmech=pmech, T2s=T2s, T4s=T4s,
+        pmech=pmech, T2s=T2s, T4s=T4s, groups=groups,
     )  # fmt: skip
     HR_model = 3600.0 * Q_in / P_model
     P_corr_m = P * P_ref / P_model
@@ -824,6 +904,7 @@ def _forward_reference(
     pmech: Num,
     T2s: FloatArray,
     T4s: FloatArray,
+    groups: Groups,
 ) -> tuple[FloatArray, FloatArray, NDArray[np.bool_]]:
     """Generator power and heat rate at reference ambient under the control law.
 
@@ -866,6 +947,7 @@ def _forward_reference(
             T2s * (T1r / T1) ** 0.72,  # T2s ∝ T1 r^0.28 and r ∝ T1
             T4s * (T1r / T1) ** 0.25,  # T4s ∝ (p4/p3)^0.25
         ),
+        groups=groups,
     )
     P = res["generator_power"]
     HR = 3600.0 * res["fuel_mass_flow"] * lhv / P
@@ -896,11 +978,12 @@ def _forward_core(
     temperatures: bool,
     status: StatusArray,
     guesses: tuple[FloatArray, FloatArray] | None = None,
+    groups: Groups = None,
 ) -> dict[str, FloatArray]:
     """Forward cycle: component health and operating point -> sensor values."""
     g2, g4 = (None, None) if guesses is None else guesses
     T3a = np.broadcast_to(np.asarray(T3, dtype=np.float64), np.broadcast(T1, p2, T3).shape)
-    T2s, c1 = air.isentropic_T(T1, p1, p2, guess=g2)
+    T2s, c1 = air.isentropic_T(T1, p1, p2, guess=g2, groups=groups)
     h1 = air.h(T1, p1)
     h2 = h1 + (air.h(T2s, p2) - h1) / eta_c
     p3 = p2 * (1.0 - dp)
@@ -915,7 +998,7 @@ def _forward_core(
     f = np.where(bad_f, 0.02, f)
     gasf = air.with_part(fd.tab, f, fd.R)
     H3 = ha3 + f * hpd3
-    T4s, c2 = gasf.isentropic_T(T3a, p3, p4, guess=g4)
+    T4s, c2 = gasf.isentropic_T(T3a, p3, p4, guess=g4, groups=groups)
     H4 = H3 - eta_t * (H3 - gasf.h(T4s, p4))
     P_shaft = np.asarray(ma) * (H3 - H4 - (h2 - h1))
     P_gen = np.asarray(eta_gen * (P_shaft - pmech))
@@ -1091,8 +1174,7 @@ def reconstruct(
     have_ma = ~np.isnan(ma_in)
     m["ma"] = ma_in
     Tf = _arr(fuel_temperature, n)
-    Tf = np.where(np.isnan(Tf), DEFAULT_FUEL_TEMPERATURE, Tf)
-    m["Tf"] = Tf
+    step = max(int(chunk_size), 1)
     par = {
         "generator_efficiency": _par(generator_efficiency, n),
         "combustor_pressure_loss": _par(combustor_pressure_loss, n),
@@ -1101,9 +1183,19 @@ def reconstruct(
         "mechanical_loss": _par(mechanical_loss, n),
     }
     fd = _fuel_data(fuel, n)
-    ok_T = (Tf >= gas.T_MIN) & (Tf <= gas.T_MAX)
-    h_f = _fuel_enthalpy(fuel, np.where(ok_T, Tf, gas.T_REF))
-    h_f = np.broadcast_to(h_f, (n,))
+    hf_src: _FuelHeat | FloatArray
+    if fuel.lhv.ndim == 0:
+        # one fuel: its sensible enthalpy chunk by chunk (no full-size temporaries); the
+        # h_f = 0 shortcut of _fuel_enthalpy still decided over the whole batch
+        m["Tf"] = Tf
+        zero = fuel_temperature is None or all(
+            np.all(_fuel_T_used(Tf[i : i + step]) == gas.T_REF) for i in range(0, n, step)
+        )
+        hf_src = _FuelHeat(fuel, zero)
+    else:
+        Tf = np.where(np.isnan(Tf), DEFAULT_FUEL_TEMPERATURE, Tf)
+        m["Tf"] = Tf
+        hf_src = np.broadcast_to(_fuel_enthalpy(fuel, _fuel_T_used(Tf)), (n,))
 
     method = correction_method
     if method == "auto":
@@ -1114,21 +1206,24 @@ def reconstruct(
         names += ["_T1", "_p0", "_RH", "_curve_bad"]
     out = {k: np.empty(n) for k in names}
     status = np.zeros(n, dtype=np.uint32)
-    step = max(int(chunk_size), 1)
     ref = _reference_ambient()
     # scalar parameters stay Python floats (same arithmetic, no per-chunk slicing)
+    # blocks of several chunks; every chunk still converges on its own (see _newton)
+    block = step * max(1, _BLOCK // step)
     with np.errstate(all="ignore"):
-        for i0 in range(0, n, step):
-            sl = slice(i0, min(i0 + step, n))
+        for i0 in range(0, n, block):
+            sl = slice(i0, min(i0 + block, n))
+            starts = np.arange(0, sl.stop - sl.start, step)
             _chunk(
                 {k: v[sl] for k, v in m.items()},
                 {k: v if isinstance(v, float) else v[sl] for k, v in par.items()},
                 fd=fd.take(sl),
-                h_f=h_f[sl],
+                h_f=hf_src if isinstance(hf_src, _FuelHeat) else hf_src[sl],
                 have_ma=have_ma[sl],
                 ref=ref,
                 model_selected=method != "curve",
                 curve=curve,
+                groups=starts if starts.size > 1 else None,
                 out={k: v[sl] for k, v in out.items()},
                 status=status[sl],
             )
