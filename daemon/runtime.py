@@ -67,6 +67,10 @@ __all__ = [
 
 log = logging.getLogger("brayscope.runtime")
 
+_OWN_TASKS = frozenset(
+    {"http", "db-watch", "ingest", "ticks", "retention", "publisher", "mqtt-feed", "http-server"}
+)
+
 #: Result rows kept while the database refuses them (oldest dropped first, counted).
 MAX_PENDING_RESULTS = 10_000
 
@@ -573,9 +577,25 @@ class Runtime:
             return max(0.1, deadline - time.monotonic())
 
         # 1. feed and ticks: stop taking messages (unacknowledged ones stay with the broker)
-        for t in tasks:
-            t.cancel()
-        await asyncio.wait(tasks, timeout=left())
+        # A cancellation can be swallowed on Python 3.11 (asyncio.wait_for completing at the
+        # moment it is cancelled, CPython gh-86296), so cancel again until the tasks are done.
+        pending: set[asyncio.Task[Any]] = set(tasks)
+        rounds = 0
+        while pending and time.monotonic() < deadline:
+            for t in pending:
+                t.cancel()
+            feed_task = getattr(self.feed, "_task", None)
+            if isinstance(feed_task, asyncio.Task) and not feed_task.done():
+                feed_task.cancel()
+            _, pending = await asyncio.wait(pending, timeout=min(0.5, left()))
+            rounds += 1
+        if rounds > 1:
+            log.info("stop: tasks needed %d cancellation rounds", rounds)
+        if pending:
+            log.warning(
+                "stop: still running after cancel: %s", sorted(t.get_name() for t in pending)
+            )
+        log.debug("stop: feed and ticks stopped")
         # 2. results still waiting for the database
         with contextlib.suppress(Exception):
             await asyncio.wait_for(self._flush_results(), timeout=left())
@@ -585,14 +605,21 @@ class Runtime:
             await asyncio.wait_for(
                 asyncio.to_thread(self.store.write_event, "stop", "clean stop"), timeout=left()
             )
+        log.debug("stop: results flushed")
         # 3. publisher: send what is pending, then 'offline'
         if pub_task is not None and self.publisher is not None:
             self.publisher.stop()
-            try:
-                await asyncio.wait_for(asyncio.shield(pub_task), timeout=min(5.0, left()))
-            except TimeoutError:
+            _, pending = await asyncio.wait({pub_task}, timeout=min(5.0, left()))
+            if pending:
                 pub_task.cancel()
+                await asyncio.wait({pub_task}, timeout=left())
+        log.debug("stop: publisher stopped")
         # 4. http
         if http_task is not None:
             http_task.cancel()
             await asyncio.wait({http_task}, timeout=left())
+        log.debug("stop: http stopped")
+        # anything still running is abandoned here (the TaskGroup would wait for it forever)
+        for t in asyncio.all_tasks():
+            if t is not asyncio.current_task() and not t.done() and t.get_name() in _OWN_TASKS:
+                log.warning("stop: abandoning task %s", t.get_name())

@@ -316,7 +316,9 @@ class Subscriber:
         self.client.disconnect()
 
 
-def run_daemon(plant: Path, log: Path, *extra: str) -> subprocess.Popen[bytes]:
+def run_daemon(
+    plant: Path, log: Path, *extra: str, env_extra: dict[str, str] | None = None
+) -> subprocess.Popen[bytes]:
     """Start ``brayscope run -c plant`` as a child process (logs to ``log``)."""
     env = dict(os.environ)
     env["PYTHONPATH"] = str(ROOT) + (
@@ -325,14 +327,15 @@ def run_daemon(plant: Path, log: Path, *extra: str) -> subprocess.Popen[bytes]:
     for k in list(env):
         if k.startswith("BRAYSCOPE_") and k not in ("BRAYSCOPE_REQUIRE_SERVICES",):
             del env[k]
-    fh = log.open("ab")
-    return subprocess.Popen(
-        [sys.executable, "-m", "daemon.cli", "run", "-c", str(plant), *extra],
-        cwd=plant.parent,
-        env=env,
-        stdout=fh,
-        stderr=fh,
-    )
+    env.update(env_extra or {})
+    with log.open("ab") as fh:
+        return subprocess.Popen(
+            [sys.executable, "-m", "daemon.cli", "run", "-c", str(plant), *extra],
+            cwd=plant.parent,
+            env=env,
+            stdout=fh,
+            stderr=fh,
+        )
 
 
 def http_get(port: int, path: str, timeout: float = 2.0) -> tuple[int, str]:
