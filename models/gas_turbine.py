@@ -310,8 +310,13 @@ class _Fluid:
             for tab, w in self.parts:
                 t = tab[r, g]
                 t = t.reshape(t.shape[0], -1)  # (k, 1) or (k, n)
-                term = t if isinstance(w, float) and w == 1.0 else t * w
-                acc = term if acc is None else acc + term
+                if isinstance(w, float) and w == 1.0:
+                    acc = t if acc is None else acc + t
+                else:
+                    term = t * w  # a new array: accumulate in place
+                    if acc is not None:
+                        term += acc
+                    acc = term
             assert acc is not None
             c = acc
             self._cache[key] = c
@@ -341,7 +346,10 @@ class _Fluid:
         c = self._rows(r, g)
         if not phi:
             return _poly(c, T)
-        out = _poly((0.0, c[1], c[2], c[3], c[4]), T)
+        out = c[4] * T  # c1 T + c2 T^2 + c3 T^3 + c4 T^4 (Horner)
+        for k in (3, 2, 1):
+            out += c[k]
+            out *= T
         lnT = np.log(T)
         lnT *= c[0]
         out += lnT
@@ -1048,7 +1056,7 @@ def _par(v: ArrayLike, n: int) -> Num:
 
 def _arr(v: ArrayLike | None, n: int, default: float = np.nan) -> FloatArray:
     if v is None:
-        return np.full(n, default)
+        return np.broadcast_to(np.float64(default), (n,))  # read only, no memory
     a = np.asarray(v, dtype=np.float64)
     if a.ndim > 1 or (a.ndim == 1 and a.shape[0] != n):
         raise ModelInputError("measurement", a.shape, f"a scalar or shape ({n},)")
