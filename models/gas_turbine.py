@@ -346,7 +346,7 @@ class _Fluid:
         c = self._rows(r, g)
         if not phi:
             return _poly(c, T)
-        out = c[4] * T  # c1 T + c2 T^2 + c3 T^3 + c4 T^4 (Horner)
+        out: FloatArray = c[4] * T  # c1 T + c2 T^2 + c3 T^3 + c4 T^4 (Horner)
         for k in (3, 2, 1):
             out += c[k]
             out *= T
