@@ -8,7 +8,8 @@ Provenance: the numbers are the standard's Annex A table values as typed in the
 open-source implementation ``RuedigerForster/ISO_6976`` (file ``src/iso6976.cpp``, tables
 ``TAB_M``, ``TAB_S``, ``TAB_HC``, ``Z_AIR``, ``L_VAP``), and checked (``tests/test_fuel.py``)
 against the worked examples of ISO 6976:2016 Annex D (Examples 1, 2 and 3 reproduce to the
-published digits) and against the 25 °C gross values of Table A.4 quoted in the project's physics notes.
+published digits) and against the 25 °C gross values of Table A.4 quoted in the project's
+physics notes.
 
 Only a subset of the standard's 60 components is typed: the fuel species of
 :mod:`models.species` plus a few further hydrocarbons (neopentane, n-heptane, n-octane,

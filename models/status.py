@@ -21,10 +21,10 @@ import numpy as np
 from numpy.typing import NDArray
 
 __all__ = [
+    "WARNING_REASONS",
     "BrayscopeModelError",
     "ModelInputError",
     "Reason",
-    "WARNING_REASONS",
     "combine",
     "reason_names",
 ]
