@@ -1124,7 +1124,9 @@ def reconstruct(
         Which correction fills ``corrected_power``/``corrected_heat_rate_kJ_per_kWh``:
         "auto" takes "curve" when ``corrections`` is given, else "model".
     chunk_size : int
-        Elements per chunk of the vectorised kernel (cache-sized; default 4096).
+        Elements per chunk of the vectorised kernel (default 4096): the Newton solves of a
+        chunk stop together.  Array operations run on blocks of whole chunks (about 8192
+        elements); the results are those of one chunk at a time.
 
     Returns
     -------
