@@ -34,6 +34,7 @@ from live_support import (
     OPERATING_POINTS,
     PrivateMosquitto,
     Publisher,
+    Subscriber,
     free_port,
     http_get,
     payload,
@@ -170,17 +171,23 @@ def test_kill9_mid_burst_then_restart_stores_every_reading_once(tmp_path: Path) 
     rng = random.Random(seed)
     with private_mosquitto(tmp_path / "broker") as broker:
         site = Site(tmp_path, broker)
+        status = f"{site.prefix}/out/status"
+        watch = Subscriber(broker.port, status)
         try:
             site.start()
+            wait_for(lambda: watch.last(status) == b"online", 10, 0.05, "status online")
             base = time.time() - 3600.0
             sent = 0
             for run in range(runs):
                 msgs = burst_messages(site.prefix, BURST, base + run * 20.0)
                 th = publish_in_background(broker.port, msgs)
-                kill_after = rng.uniform(0.05, 1.5)
+                kill_after = rng.uniform(0.05, 1.1)  # a 10,000 burst takes about 1.5 s here
                 time.sleep(kill_after)
                 stored_at_kill = site.readings()
                 site.kill()
+                # MQTT 5.0 3.1.2.5: the broker publishes the Will when the network connection
+                # closes without a DISCONNECT, as after SIGKILL
+                wait_for(lambda: watch.last(status) == b"offline", 10, 0.05, "last will")
                 site.start(ready=False)
                 th.join(120)
                 assert not th.is_alive()
@@ -195,9 +202,12 @@ def test_kill9_mid_burst_then_restart_stores_every_reading_once(tmp_path: Path) 
                 assert n == sent, "a reading was lost or stored twice"
                 assert site.integrity() == "ok"
             assert len(site.keys()) == sent
+            wait_for(lambda: watch.last(status) == b"online", 10, 0.05, "online again")
             rc, _ = site.terminate(30)
             assert rc == 0, site.tail()
+            wait_for(lambda: watch.last(status) == b"offline", 10, 0.05, "offline on stop")
         finally:
+            watch.close()
             site.stop()
 
 

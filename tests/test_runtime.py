@@ -49,8 +49,6 @@ from daemon.types import Snapshot
 from models.gas_turbine import GAS_TURBINE
 from models.status import Reason
 
-pytestmark = pytest.mark.services
-
 
 def _plant(tmp_path: Path, *, broker_port: int = 1883, db: str = "sqlite://", **kw: Any) -> Any:
     prefix = f"bstest/{uuid.uuid4().hex[:10]}"
@@ -200,6 +198,7 @@ def _results_rows(rt: Runtime, unit: str) -> list[dict[str, Any]]:
     return rt.store.latest_results(unit, 1000)
 
 
+@pytest.mark.services
 async def test_live_path_end_to_end(tmp_path: Path, mqtt_broker: Any, store_url: str) -> None:
     print(f"broker: {mqtt_broker.describe()}; database: {store_url.rsplit('@', maxsplit=1)[-1]}")
     plant = _plant(tmp_path, broker_port=mqtt_broker.port, db=store_url)
@@ -265,6 +264,7 @@ async def test_live_path_end_to_end(tmp_path: Path, mqtt_broker: Any, store_url:
         sub2.close()
 
 
+@pytest.mark.services
 async def test_bad_inputs_quarantined_counted_and_daemon_keeps_running(
     tmp_path: Path, mqtt_broker: Any
 ) -> None:
@@ -393,6 +393,7 @@ class TcpProxy:
 
 
 @pytest.mark.slow
+@pytest.mark.services
 @pytest.mark.parametrize("store_url", ["postgresql"], indirect=True)
 async def test_database_outage_nothing_acked_is_lost(
     tmp_path: Path, mqtt_broker: Any, store_url: str
