@@ -258,6 +258,23 @@ def test_broker_restart_http_endpoints_and_tokens(tmp_path: Path) -> None:
             assert httpx.get(base + "/api/units").status_code == 401
             ok = httpx.get(base + "/api/units", headers={"Authorization": f"Bearer {read}"})
             assert ok.status_code == 200
+            auth = {"Authorization": f"Bearer {read}"}
+
+            def stored_result() -> bool:
+                r = httpx.get(base + "/api/units/KR-GT1/latest", headers=auth)
+                return r.status_code == 200 and bool(r.json())
+
+            wait_for(stored_result, 10, 0.2, "a stored result through the API")
+            latest = httpx.get(base + "/api/units/KR-GT1/latest", headers=auth).json()[0]
+            assert latest["unit"] == "KR-GT1"
+            assert 0.5 < latest["results"]["compressor_isentropic_efficiency"] < 1.0
+            assert latest["inputs"]["generator_power"] == pytest.approx(44.4e6)
+            hist = httpx.get(
+                base + "/api/units/KR-GT1/results",
+                params={"since": time.time() - 600, "until": time.time() + 60},
+                headers=auth,
+            ).json()
+            assert hist["count"] >= 1 and hist["results"][-1]["unit"] == "KR-GT1"
             ev = {"kind": "note", "unit": "KR-GT1", "text": "restart test"}
             r = httpx.post(
                 base + "/api/events", json=ev, headers={"Authorization": f"Bearer {read}"}
