@@ -876,13 +876,19 @@ def saturation_pressure(T: ArrayLike) -> FloatArray:
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
         v = 1.0 - T / _TC
         a = _WP_A
-        liq = _PC * np.exp(
-            (_TC / T)
-            * (a[0] * v + a[1] * v**1.5 + a[2] * v**3 + a[3] * v**3.5 + a[4] * v**4 + a[5] * v**7.5)
-        )
-        th = T / _TT
-        ice = _PT * np.exp(sum(ai * th**bi for ai, bi in zip(_SUB_A, _SUB_B, strict=True)) / th)
-        out: FloatArray = np.where(T >= _TT, liq, ice)
+        # half-integer powers from one square root (v^1.5 = v sqrt(v), ...)
+        sv = np.sqrt(v)
+        v3 = v * v * v
+        half = a[1] * v + a[3] * v3 + a[5] * (v3 * v3 * v)  # times sqrt(v)
+        half *= sv
+        half += a[0] * v + a[2] * v3 + a[4] * (v3 * v)
+        half *= _TC / T
+        out: FloatArray = np.asarray(_PC * np.exp(half))
+        below = T < _TT
+        if below.any():  # the ice branch only where it is used
+            th = T[below] / _TT
+            ice = sum(ai * th**bi for ai, bi in zip(_SUB_A, _SUB_B, strict=True)) / th
+            out[below] = _PT * np.exp(ice)
         out = np.where((T >= 50.0) & (T <= _TC), out, np.nan)
     return out
 
