@@ -493,6 +493,15 @@ class Runtime:
             read_token=self.plant.http.read_token,
         )
 
+        host = self.plant.http.host
+        no_token = self.plant.http.read_token is None and self.plant.http.api_token is None
+        if host not in ("127.0.0.1", "::1", "localhost") and no_token:
+            log.warning(
+                "HTTP endpoint bound to %s without a token: anyone who reaches it can read "
+                "the results; set BRAYSCOPE_API_READ_TOKEN or bind to 127.0.0.1",
+                host,
+            )
+
         async def started() -> None:
             self._http_ready.set()
             log.info("http listening on %s", self.plant.http.bind)
