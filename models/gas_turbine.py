@@ -767,8 +767,8 @@ def _chunk(
     # ---- shaft power and heat balance -----------------------------------------------------
     P_shaft = P / eta_gen + pmech
     q_net = hf + (eta_b - closs) * lhv  # J per kg fuel reaching the gas
-    h4a = air.h(T4, p4)
-    hr4 = _hr(T4, p4)
+    hr4 = _hr(T4, p4)  # departure at (T4, p4), shared by the air and the products
+    h4a = air._eval(_H, T4) + R_a * T4 * hr4
     pd = _Fluid([(fd.tab, 1.0)], fd.R)
     h4pd = pd.h(T4) + fd.R * T4 * hr4
     ma_hb = (mf * (q_net - h4pd) - P_shaft) / (h4a - h1)
