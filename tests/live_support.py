@@ -125,6 +125,7 @@ def plant_toml(
     max_age_s: float = 600.0,
     queue_size: int = 10000,
     subscriptions: str = "exact",
+    session_expiry_s: int = 3600,
 ) -> str:
     """A plant file for tests: every measurement of the contract on its own topic."""
     out = [
@@ -138,7 +139,7 @@ def plant_toml(
         f'client_id = "{client_id}"',
         "qos = 1",
         "keepalive_s = 5",
-        "session_expiry_s = 3600",
+        f"session_expiry_s = {session_expiry_s}",
         f"queue_size = {queue_size}",
         "",
         "[database]",

@@ -59,6 +59,7 @@ def _plant(tmp_path: Path, *, broker_port: int = 1883, db: str = "sqlite://", **
         http_port=free_port(),
         client_id=f"bs-test-{uuid.uuid4().hex[:8]}",
         units=("KR-GT1", "KR-GT2"),
+        session_expiry_s=120,  # the shared test broker forgets these sessions soon
         **kw,
     )
     path = tmp_path / "plant.toml"
