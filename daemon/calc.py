@@ -151,7 +151,7 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
         "--unit",
         default=DEFAULT_UNIT_TYPE,
         metavar="TYPE",
-        help=f"unit type of records without a 'unit' key (default: {DEFAULT_UNIT_TYPE})",
+        help=f"unit type of records without a 'unit_type' key (default: {DEFAULT_UNIT_TYPE})",
     )
     p.add_argument(
         "--example",
