@@ -53,6 +53,11 @@ __all__ = [
     "UnitSpec",
 ]
 
+#: Prefix of auxiliary measurements (``daemon.config.AUX_PREFIX``).
+AUX_PREFIX = "aux."
+#: Separator of a redundant sensor's label (``daemon.config.SENSOR_SEP``).
+SENSOR_SEP = ":"
+
 #: Quarantine reasons that mark a measurement bad, and the bit they set.
 BAD_MARK_REASONS: dict[str, Reason] = {
     "bad_quality": Reason.INPUT_BAD_QUALITY,
@@ -75,8 +80,11 @@ class UnitSpec:
     unit_type : str
         Unit type name.
     max_age_s : mapping of str to float
-        Measurement → maximum age of a held value [s]; its keys are the snapshot's
-        measurements (together with ``extra_measurements``).
+        Reading name → maximum age of a held value [s].  Reading names are the tags'
+        measurements: canonical names, ``name:label`` for redundant sensors and
+        ``aux.<name>`` for auxiliary values.  The snapshot's measurements are the canonical
+        names among them (together with ``extra_measurements``); auxiliary values are held
+        but never enter the snapshot (see :meth:`Assembler.aux`).
     extra_measurements : tuple of str
         Measurements the unit type needs but no tag maps (always ``INPUT_MISSING``).
     """
@@ -88,8 +96,15 @@ class UnitSpec:
 
     @property
     def measurements(self) -> tuple[str, ...]:
-        extra = tuple(m for m in self.extra_measurements if m not in self.max_age_s)
-        return (*self.max_age_s, *extra)
+        """Snapshot measurements: canonical names, auxiliary values excluded."""
+        own = tuple(dict.fromkeys(_canonical(m) for m in self.max_age_s if not is_aux(m)))
+        extra = tuple(m for m in self.extra_measurements if m not in own)
+        return (*own, *extra)
+
+    @property
+    def aux_names(self) -> tuple[str, ...]:
+        """Auxiliary reading names (``aux.<name>``)."""
+        return tuple(m for m in self.max_age_s if is_aux(m))
 
     @classmethod
     def from_config(cls, name: str, unit: Any) -> UnitSpec:
@@ -104,6 +119,15 @@ class UnitSpec:
         except (RuntimeError, AttributeError):
             extra = ()
         return cls(name=name, unit_type=str(unit.type), max_age_s=ages, extra_measurements=extra)
+
+
+def is_aux(name: str) -> bool:
+    """True for an auxiliary reading name (``aux.<name>``)."""
+    return name.startswith(AUX_PREFIX)
+
+
+def _canonical(name: str) -> str:
+    return name.split(SENSOR_SEP, 1)[0]
 
 
 @dataclass
@@ -251,28 +275,38 @@ class Assembler:
             return None
         return self._snapshot(st, ts)
 
+    def aux(self, unit: str, ts: float) -> dict[str, tuple[float, int, float]]:
+        """Auxiliary values of ``unit`` at ``ts``: ``aux.<name>`` → (value [SI], Reason bits,
+        age [s]), with the same hold, stale and bad-mark rules as the snapshot's measurements.
+        Never part of :class:`~daemon.types.Snapshot` (so never passed to compute); empty for
+        an unknown unit."""
+        st = self._units.get(unit)
+        if st is None:
+            return {}
+        return {m: self._channel(st, m, ts) for m in st.spec.aux_names}
+
+    def _channel(self, st: _UnitState, m: str, t: float) -> tuple[float, int, float]:
+        h = st.held.get(m)
+        max_age = st.spec.max_age_s.get(m, math.inf)
+        if h is None:
+            return math.nan, int(Reason.INPUT_MISSING), math.nan
+        has_value = h.source_ts > -math.inf
+        age = max(0.0, t - h.source_ts) if has_value else math.nan
+        if h.bad_ts > h.source_ts:  # the latest news is bad
+            bits = h.bad_bit
+            if t - h.bad_ts > max_age:
+                bits |= int(Reason.INPUT_STALE)
+            return math.nan, bits, age
+        if age > max_age:
+            return math.nan, int(Reason.INPUT_STALE), age
+        return h.value, 0, age
+
     def _snapshot(self, st: _UnitState, t: float) -> Snapshot:
         values: dict[str, float] = {}
         quality: dict[str, int] = {}
         ages: dict[str, float] = {}
         for m in st.spec.measurements:
-            h = st.held.get(m)
-            max_age = st.spec.max_age_s.get(m, math.inf)
-            if h is None:
-                values[m], quality[m], ages[m] = math.nan, int(Reason.INPUT_MISSING), math.nan
-                continue
-            has_value = h.source_ts > -math.inf
-            age = max(0.0, t - h.source_ts) if has_value else math.nan
-            ages[m] = age
-            if h.bad_ts > h.source_ts:  # the latest news is bad
-                bits = h.bad_bit
-                if t - h.bad_ts > max_age:
-                    bits |= int(Reason.INPUT_STALE)
-                values[m], quality[m] = math.nan, bits
-            elif age > max_age:
-                values[m], quality[m] = math.nan, int(Reason.INPUT_STALE)
-            else:
-                values[m], quality[m] = h.value, 0
+            values[m], quality[m], ages[m] = self._channel(st, m, t)
         return Snapshot(
             unit=st.spec.name,
             unit_type=st.spec.unit_type,

@@ -16,7 +16,7 @@ __all__ = ["add_parser", "run"]
 EPILOG = """\
 example:
   brayscope check -c daemon/examples/kestrel-ridge.toml
-      OK: 3 units, 36 tags, 25 subscriptions (daemon/examples/kestrel-ridge.toml)
+      OK: 3 units, 38 tags, 27 subscriptions (daemon/examples/kestrel-ridge.toml)
 
   A mistyped unit of measure is reported with the key and the fix, e.g.
       plant.toml: units.KR-GT1.tags[3].uom: unknown unit 'degc' (tag kestrel/gt1/TT-CIT)

@@ -71,6 +71,15 @@ UNIT_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 DEFAULT_BARO_MEASUREMENT = "ambient_pressure"
 #: Standard atmosphere [Pa] (ISO 2533), used only to check gauge ranges against limits.
 STANDARD_ATMOSPHERE_PA = 101325.0
+#: Prefix of auxiliary measurements: validated and stored, never passed to a unit type's compute.
+AUX_PREFIX = "aux."
+#: Name of an auxiliary measurement after :data:`AUX_PREFIX`.
+AUX_NAME_RE = re.compile(r"^[a-z0-9_]{1,48}$")
+#: Separator between a measurement and the sensor label of a redundant sensor
+#: (``compressor_discharge_temperature:A``).
+SENSOR_SEP = ":"
+#: Sensor label of a redundant sensor.
+SENSOR_RE = re.compile(r"^[A-Za-z0-9_-]{1,8}$")
 
 
 # --------------------------------------------------------------------------------------------
@@ -256,9 +265,38 @@ class TagConfig(_Section):
     max_age_s: float = Field(default=60.0, gt=0.0)
     baro_measurement: str | None = None
     baro_pa: float | None = Field(default=None, gt=0.0)
+    max_spread: float | None = Field(default=None, gt=0.0)
+    stuck_after_s: float | None = Field(default=None, gt=0.0)
+    stuck_band: float = Field(default=0.0, ge=0.0)
     description: str = ""
 
     _converter: Converter | None = PrivateAttr(default=None)
+
+    @property
+    def is_aux(self) -> bool:
+        """True for an auxiliary measurement (``aux.<name>``): validated and stored, held by
+        the assembly, never passed to compute."""
+        return self.measurement.startswith(AUX_PREFIX)
+
+    @property
+    def canonical(self) -> str:
+        """The measurement without a sensor label (``compressor_discharge_temperature`` for
+        ``compressor_discharge_temperature:A``); the measurement itself otherwise."""
+        return self.measurement.split(SENSOR_SEP, 1)[0]
+
+    @property
+    def sensor(self) -> str:
+        """The sensor label of a redundant sensor (``"A"``), or ``""``."""
+        _, sep, label = self.measurement.partition(SENSOR_SEP)
+        return label if sep else ""
+
+    @property
+    def max_spread_si(self) -> float | None:
+        """``max_spread`` converted to the SI unit of the measurement (a difference: scale
+        only, no offset), or None."""
+        if self.max_spread is None:
+            return None
+        return abs(self.converter.scale) * self.max_spread
 
     @property
     def converter(self) -> Converter:
@@ -345,11 +383,25 @@ class UnitConfig(_Section):
         return out
 
     def tag_for(self, measurement: str) -> TagConfig | None:
-        """The tag mapped to ``measurement``, or None."""
+        """The tag mapped to ``measurement`` (exact name, e.g. ``ambient_pressure:A`` for one
+        sensor of a redundant pair), or None."""
         for tag in self.tags:
             if tag.measurement == measurement:
                 return tag
         return None
+
+    def sensor_groups(self) -> dict[str, list[TagConfig]]:
+        """Redundant sensors: canonical measurement → its sensor tags (``name:label``), for
+        every measurement mapped with sensor labels."""
+        out: dict[str, list[TagConfig]] = {}
+        for tag in self.tags:
+            if tag.sensor:
+                out.setdefault(tag.canonical, []).append(tag)
+        return out
+
+    def aux_tags(self) -> list[TagConfig]:
+        """The auxiliary tags (``aux.<name>``), in file order."""
+        return [t for t in self.tags if t.is_aux]
 
 
 class PlantConfig(_Section):
@@ -717,6 +769,7 @@ class _Checker:
         unit = view.unit
         specs = {m.name: m for m in unit_type.measurements}
         seen: dict[str, list[int]] = {}
+        aux_seen: dict[str, list[int]] = {}
         for i, tag in view.tags:
             tpath = f"{base}.tags[{i}]"
             where = f" (tag {tag.topic}{'#' + tag.key if tag.key else ''})"
@@ -726,16 +779,30 @@ class _Checker:
                     f"topic {tag.topic!r} contains a wildcard or NUL{where}",
                     "write the exact topic; subscriptions are derived from the tags",
                 )
-            spec = specs.get(tag.measurement)
+            self._check_fault_keys(tpath, tag, where)
+            if tag.is_aux:
+                if self._check_aux_tag(tpath, tag, where):
+                    aux_seen.setdefault(tag.measurement, []).append(i)
+                continue
+            spec = specs.get(tag.canonical)
             if spec is None:
                 self.add(
                     f"{tpath}.measurement",
-                    f"unknown measurement {tag.measurement!r} for unit type {unit_type.name!r}"
+                    f"unknown measurement {tag.canonical!r} for unit type {unit_type.name!r}"
                     f"{where}",
-                    f"use one of {', '.join(specs)}" + _did_you_mean(tag.measurement, specs),
+                    f"use one of {', '.join(specs)}, or aux.<name> for an auxiliary value "
+                    "that is stored but not computed with" + _did_you_mean(tag.canonical, specs),
                 )
                 continue
-            seen.setdefault(tag.measurement, []).append(i)
+            if SENSOR_SEP in tag.measurement and not SENSOR_RE.match(tag.sensor):
+                self.add(
+                    f"{tpath}.measurement",
+                    f"sensor label {tag.sensor!r} of {tag.measurement!r} is not usable{where}",
+                    "write the measurement followed by ':' and a short label of letters, digits, "
+                    "'_' or '-' (at most 8), e.g. " + f"{tag.canonical}:A",
+                )
+                continue
+            seen.setdefault(tag.canonical, []).append(i)
             try:
                 tag._converter = compile_converter(tag.uom, spec.unit, self.registry)
             except UomError as exc:
@@ -743,18 +810,22 @@ class _Checker:
                 continue
             self._check_baro(tpath, tag, unit, specs, where)
             self._check_range(tpath, tag, spec, where)
+        tags = dict(view.tags)
         for name, idx in seen.items():
+            self._check_group(base, name, [(i, tags[i]) for i in idx])
+        for name, idx in aux_seen.items():
             if len(idx) > 1:
                 places = ", ".join(f"tags[{i}]" for i in idx)
                 self.add(
                     f"{base}.tags",
-                    f"measurement {name!r} is mapped {len(idx)} times ({places})",
-                    "map each measurement exactly once; remove or rename the extra tags",
+                    f"auxiliary measurement {name!r} is mapped {len(idx)} times ({places})",
+                    "give each auxiliary tag its own aux.<name>",
                 )
+        assumed = {m.split(SENSOR_SEP, 1)[0] for m in view.assumed}
         missing = [
             m.name
             for m in unit_type.measurements
-            if m.required and m.name not in seen and m.name not in view.assumed
+            if m.required and m.name not in seen and m.name not in assumed
         ]
         if missing:
             self.add(
@@ -762,6 +833,92 @@ class _Checker:
                 f"required measurement(s) not mapped: {', '.join(missing)}",
                 "add a [[units." + base.split(".", 1)[1] + ".tags]] entry for each",
             )
+
+    def _check_fault_keys(self, tpath: str, tag: TagConfig, where: str) -> None:
+        if tag.stuck_band > 0.0 and tag.stuck_after_s is None:
+            self.add(
+                f"{tpath}.stuck_band",
+                f"stuck_band is given without stuck_after_s{where}",
+                "add stuck_after_s = <seconds> to enable the stuck-sensor test, or remove "
+                "stuck_band",
+            )
+        if tag.max_spread is not None and not tag.sensor:
+            self.add(
+                f"{tpath}.max_spread",
+                f"max_spread applies to redundant sensors only{where}",
+                f'label the redundant tags measurement = "{tag.canonical}:A", '
+                f'"{tag.canonical}:B" ..., or remove max_spread',
+            )
+
+    def _check_aux_tag(self, tpath: str, tag: TagConfig, where: str) -> bool:
+        name = tag.measurement[len(AUX_PREFIX) :]
+        if not AUX_NAME_RE.match(name):
+            self.add(
+                f"{tpath}.measurement",
+                f"auxiliary measurement {tag.measurement!r} has an unusable name{where}",
+                "write aux.<name> with 1 to 48 lower-case letters, digits or '_', e.g. "
+                "aux.bearing_vibration",
+            )
+            return False
+        try:
+            target = _si_target(tag.uom, self.registry)
+            tag._converter = compile_converter(tag.uom, target, self.registry)
+        except UomError as exc:
+            self.add(f"{tpath}.uom", exc.message + where, exc.fix)
+            return False
+        if tag.is_gauge:
+            self.add(
+                f"{tpath}.uom",
+                f"gauge unit {tag.uom!r} on an auxiliary measurement{where}",
+                "use an absolute or differential unit (bar, kPa, mbar) for auxiliary values",
+            )
+            return False
+        if tag.baro_pa is not None or tag.baro_measurement is not None:
+            self.add(
+                tpath,
+                f"barometric reference given for an auxiliary measurement{where}",
+                "remove baro_pa/baro_measurement",
+            )
+        if not tag.low < tag.high:
+            self.add(
+                tpath,
+                f"plausible range low={tag.low!r} is not below high={tag.high!r}{where}",
+                "set low < high, both in the tag's own unit " + repr(tag.uom),
+            )
+        return True
+
+    def _check_group(self, base: str, name: str, members: list[tuple[int, TagConfig]]) -> None:
+        """Several tags of one measurement are allowed only as labelled redundant sensors
+        (``name:A``, ``name:B`` ...), each with ``max_spread``."""
+        if len(members) < 2:
+            return
+        places = ", ".join(f"tags[{i}]" for i, _ in members)
+        unlabelled = [i for i, t in members if not t.sensor]
+        if unlabelled:
+            self.add(
+                f"{base}.tags",
+                f"measurement {name!r} is mapped {len(members)} times ({places})",
+                "map each measurement exactly once; for redundant sensors label every one "
+                f'(measurement = "{name}:A", "{name}:B" ...) and give each max_spread',
+            )
+            return
+        labels = [t.sensor for _, t in members]
+        dupes = sorted({x for x in labels if labels.count(x) > 1})
+        if dupes:
+            self.add(
+                f"{base}.tags",
+                f"sensor label(s) {', '.join(dupes)} of {name!r} used twice ({places})",
+                "give every redundant sensor its own label",
+            )
+        for i, t in members:
+            if t.max_spread is None:
+                self.add(
+                    f"{base}.tags[{i}].max_spread",
+                    f"redundant sensor {t.measurement!r} has no max_spread (tag {t.topic}"
+                    f"{'#' + t.key if t.key else ''})",
+                    "give max_spread = <largest allowed difference between the sensors, in "
+                    f"the tag's unit {t.uom!r}>",
+                )
 
     def _check_baro(
         self,
@@ -789,7 +946,8 @@ class _Checker:
         ref = tag.baro_reference
         if ref is None:
             return
-        if ref not in specs or specs[ref].unit != "Pa":
+        ref_canonical = ref.split(SENSOR_SEP, 1)[0]
+        if ref_canonical not in specs or specs[ref_canonical].unit != "Pa":
             self.add(
                 f"{tpath}.baro_measurement",
                 f"barometric reference {ref!r} is not a pressure measurement of this unit "
@@ -1124,6 +1282,43 @@ def _url_has_password(url: str) -> bool:
         return bool(urlsplit(url).password)
     except ValueError:
         return False
+
+
+#: Named SI units of the dimensions that have one in our measurement schema.
+_NAMED_SI = {
+    "[temperature]": "K",
+    "[mass] / [length] / [time] ** 2": "Pa",
+    "[mass] / [time]": "kg/s",
+    "[length] ** 2 * [mass] / [time] ** 3": "W",
+    "dimensionless": "1",
+}
+
+
+def _si_target(uom: str, registry: pint.UnitRegistry[Any]) -> str:
+    """The SI unit an auxiliary value of unit ``uom`` is stored in (coherent SI base units;
+    K, Pa, kg/s, W and 1 by name).
+
+    Raises
+    ------
+    daemon.uom.UomError
+        ``uom`` is missing or not a unit.
+    """
+    from daemon.uom import UnknownUnitError
+
+    parsed = parse_uom(uom) if uom and uom.strip() else None
+    if parsed is None:
+        raise UnknownUnitError(uom, "missing unit of measure", "give the unit, e.g. mm/s")
+    try:
+        unit = registry.parse_units(parsed.pint_expr)
+    except Exception as exc:  # pint raises several types (UndefinedUnitError, token errors)
+        raise UnknownUnitError(
+            uom, f"unknown unit {uom!r}", "give a pint unit, e.g. mm/s, degC, bar, um, rpm"
+        ) from exc
+    named = _NAMED_SI.get(str(unit.dimensionality))
+    if named is not None:
+        return named
+    base = registry.Quantity(1.0, unit).to_base_units().units
+    return f"{base:~C}" or "1"
 
 
 def _split_bind(bind: str) -> tuple[str, int]:

@@ -217,3 +217,49 @@ def test_from_plant_shape() -> None:
     assert a.tick_s == 5.0
     st = UnitSpec.from_config("KR-GT2", unit)
     assert st.max_age_s == {"generator_power": 45.0, "x": 5.0}  # largest age of redundant tags
+
+
+# ----------------------------------------------------------------------------------------------
+# Auxiliary values (aux.<name>): held, aged, marked bad, never in the snapshot
+# ----------------------------------------------------------------------------------------------
+
+
+def aux_spec() -> UnitSpec:
+    return UnitSpec(
+        "KR-GT1",
+        "gas_turbine",
+        {"generator_power": 20.0, "aux.bearing1_vibration": 30.0},
+    )
+
+
+def test_aux_values_are_held_but_never_enter_the_snapshot() -> None:
+    a = Assembler([aux_spec()], 10.0)
+    ((value, bits, age),) = a.aux("KR-GT1", T0).values()
+    assert math.isnan(value) and bits == Reason.INPUT_MISSING and math.isnan(age)
+    a.ingest([rd("aux.bearing1_vibration", 4.5e-3, T0 - 2.0), rd("generator_power", 4e7, T0)])
+    (s,) = a.tick(T0)
+    assert "aux.bearing1_vibration" not in s.values and "aux.bearing1_vibration" not in s.quality
+    assert set(s.values) == {"generator_power"}
+    value, bits, age = a.aux("KR-GT1", T0)["aux.bearing1_vibration"]
+    assert (value, bits, age) == (4.5e-3, 0, pytest.approx(2.0))
+    # same stale rule as any measurement: age 32 s > 30 s
+    value, bits, _ = a.aux("KR-GT1", T0 + 30.0)["aux.bearing1_vibration"]
+    assert math.isnan(value) and bits == Reason.INPUT_STALE
+    # an out-of-range aux value marks the aux channel bad, not the snapshot
+    a.ingest([], [qd("aux.bearing1_vibration", "out_of_range", T0 + 31.0)])
+    value, bits, _ = a.aux("KR-GT1", T0 + 32.0)["aux.bearing1_vibration"]
+    assert math.isnan(value) and bits == Reason.INPUT_BAD_QUALITY
+    assert a.aux("KR-GT9", T0) == {}
+
+
+def test_aux_spec_from_plant_file() -> None:
+    from pathlib import Path
+
+    from daemon.config import load_plant
+
+    example = Path(__file__).resolve().parent.parent / "daemon" / "examples" / "kestrel-ridge.toml"
+    plant = load_plant(example)
+    st = UnitSpec.from_config("KR-GT1", plant.units["KR-GT1"])
+    assert st.aux_names == ("aux.bearing1_vibration", "aux.lube_oil_temperature")
+    assert not any(m.startswith("aux.") for m in st.measurements)
+    assert "compressor_discharge_temperature" in st.measurements

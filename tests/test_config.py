@@ -69,7 +69,7 @@ def _one(issues: list[ConfigIssue], key: str) -> ConfigIssue:
 def test_shipped_example_validates_with_brayscope_check(capsys: pytest.CaptureFixture[str]) -> None:
     assert cli.main(["check", "-c", str(EXAMPLE)]) == 0
     out = capsys.readouterr().out
-    assert out.startswith("OK: 3 units, 36 tags, 25 subscriptions")
+    assert out.startswith("OK: 3 units, 38 tags, 27 subscriptions")
 
 
 def test_example_content_and_converters() -> None:
@@ -100,7 +100,7 @@ def test_subscriptions_are_derived_from_the_tags(tmp_path: Path) -> None:
     assert "kestrel/gt3/data" in plant.subscriptions()
     assert all("+" not in s and "#" not in s for s in plant.subscriptions())
     index = plant.tag_index()
-    assert len(index) == plant.n_tags == 36
+    assert len(index) == plant.n_tags == 38
     assert index[("kestrel/gt3/data", "PCD")][0] == "KR-GT3"
     parent = load_plant(_variant(tmp_path, ('subscriptions = "exact"', 'subscriptions = "parent"')))
     assert parent.subscriptions() == ["kestrel/gt1/+", "kestrel/gt2/+", "kestrel/gt3/data"]
@@ -375,7 +375,7 @@ def test_check_help_teaches_with_an_example(capsys: pytest.CaptureFixture[str]) 
 def test_check_lists_tag_conversions(capsys: pytest.CaptureFixture[str]) -> None:
     assert cli.main(["check", "-c", str(EXAMPLE), "--tags"]) == 0
     out = capsys.readouterr().out.splitlines()
-    assert len(out) == 1 + 36
+    assert len(out) == 1 + 38
     cdp = next(line for line in out if "kestrel/gt1/PT-CDP" in line)
     assert "Pa = 100000*x + 0 + ambient_pressure" in cdp
 
@@ -391,3 +391,188 @@ def test_db_commands(
     assert "revision: 0001 (head 0001, up to date)" in capsys.readouterr().out
     assert cli.main(["db", "purge", "-c", str(EXAMPLE), "--days", "30", "--dry-run"]) == 0
     assert "would delete rows older than 30 days: 0 results, 0 readings" in capsys.readouterr().out
+
+
+# ----------------------------------------------------------------------------------------------
+# Auxiliary tags (aux.<name>) and redundant sensors (name:label)
+# ----------------------------------------------------------------------------------------------
+
+AUX_TAG = """
+  [[units.KR-GT1.tags]]
+  topic = "kestrel/gt1/VT-BRG2"
+  measurement = "{measurement}"
+  uom = "{uom}"
+  low = {low}
+  high = {high}
+"""
+GT2_HEADER = "[units.KR-GT2]"
+
+
+def _with_tag(tmp_path: Path, **fields: object) -> Path:
+    block = AUX_TAG.format(**fields)
+    return _variant(tmp_path, (GT2_HEADER, block + "\n" + GT2_HEADER))
+
+
+def test_example_aux_tags_convert_to_si_and_stay_out_of_the_unit_type() -> None:
+    plant = load_plant(EXAMPLE)
+    gt1 = plant.units["KR-GT1"]
+    vib = gt1.tag_for("aux.bearing1_vibration")
+    oil = gt1.tag_for("aux.lube_oil_temperature")
+    assert vib is not None and vib.is_aux and oil is not None and oil.is_aux
+    # 1 mm = 1e-3 m (SI Brochure, 9th ed., prefixes); degC -> K adds 273.15 (NIST SP 811 B.9)
+    assert vib.converter.target == "m/s" and vib.to_si(4.5) == pytest.approx(4.5e-3, rel=1e-12)
+    assert oil.converter.target == "K" and oil.to_si(55.0) == pytest.approx(328.15, abs=1e-12)
+    assert [t.measurement for t in gt1.aux_tags()] == [
+        "aux.bearing1_vibration",
+        "aux.lube_oil_temperature",
+    ]
+    names = {m.name for m in gt1.unit_type.measurements}
+    assert not any(t.measurement in names for t in gt1.aux_tags())
+
+
+@pytest.mark.parametrize(
+    ("fields", "key", "text"),
+    [
+        (
+            {"measurement": "aux.Bearing-Vib", "uom": "mm/s", "low": 0, "high": 25},
+            "units.KR-GT1.tags[14].measurement",
+            "unusable name",
+        ),
+        (
+            {"measurement": "aux.bearing2_vibration", "uom": "mms", "low": 0, "high": 25},
+            "units.KR-GT1.tags[14].uom",
+            "unknown unit 'mms'",
+        ),
+        (
+            {"measurement": "aux.bearing2_vibration", "uom": "mm/s", "low": 25, "high": 0},
+            "units.KR-GT1.tags[14]",
+            "is not below high",
+        ),
+        (
+            {"measurement": "aux.seal_pressure", "uom": "barg", "low": 0, "high": 5},
+            "units.KR-GT1.tags[14].uom",
+            "gauge unit 'barg' on an auxiliary measurement",
+        ),
+        (
+            {"measurement": "aux.lube_oil_temperature", "uom": "degC", "low": 0, "high": 90},
+            "units.KR-GT1.tags",
+            "auxiliary measurement 'aux.lube_oil_temperature' is mapped 2 times",
+        ),
+    ],
+)
+def test_aux_tag_errors(tmp_path: Path, fields: dict[str, object], key: str, text: str) -> None:
+    issues = [i for i in _issues(_with_tag(tmp_path, **fields)) if i.key_path == key]
+    assert any(text in i.message for i in issues), issues
+
+
+def test_aux_tag_is_decoded_and_range_checked(tmp_path: Path) -> None:
+    from daemon.feeds.decode import Decoder
+
+    plant = load_plant(EXAMPLE)
+    dec = Decoder.from_plant(plant)
+    ok = dec.decode("kestrel/gt1/VT-BRG1", b"3.2", 1_780_000_000.0)
+    (r,) = ok.readings
+    assert r.measurement == "aux.bearing1_vibration" and r.value == pytest.approx(3.2e-3)
+    bad = dec.decode("kestrel/gt1/VT-BRG1", b"40", 1_780_000_000.0)
+    (q,) = bad.quarantined
+    assert q.reason == "out_of_range" and q.measurement == "aux.bearing1_vibration"
+    cold = dec.decode("kestrel/gt1/TT-LO", b"-300", 1_780_000_000.0)
+    assert cold.quarantined[0].reason == "nonphysical"  # below 0 K
+
+
+REDUNDANT_CDT = (
+    '  measurement = "compressor_discharge_temperature"\n',
+    '  measurement = "compressor_discharge_temperature:A"\n  max_spread = 8.0\n',
+)
+SECOND_CDT = """
+  [[units.KR-GT1.tags]]
+  topic = "kestrel/gt1/TT-CDP-B"
+  measurement = "{measurement}"
+  uom = "degC"
+  low = 100.0
+  high = 520.0
+{extra}"""
+
+
+def _redundant(tmp_path: Path, measurement: str, extra: str = "", first=REDUNDANT_CDT) -> Path:
+    block = SECOND_CDT.format(measurement=measurement, extra=extra)
+    return _variant(tmp_path, first, (GT2_HEADER, block + "\n" + GT2_HEADER))
+
+
+def test_redundant_sensors_load_as_a_group(tmp_path: Path) -> None:
+    path = _redundant(tmp_path, "compressor_discharge_temperature:B", "  max_spread = 8.0\n")
+    unit = load_plant(path).units["KR-GT1"]
+    group = unit.sensor_groups()["compressor_discharge_temperature"]
+    assert [t.sensor for t in group] == ["A", "B"]
+    assert all(t.canonical == "compressor_discharge_temperature" for t in group)
+    # a temperature difference of 8 degC is 8 K (NIST SP 811 4.2.1.1): scale only, no offset
+    assert group[1].max_spread_si == pytest.approx(8.0)
+
+
+@pytest.mark.parametrize(
+    ("measurement", "extra", "first", "key", "text"),
+    [
+        (  # two plain tags: the classic duplicate, with the fix naming the group form
+            "compressor_discharge_temperature",
+            "",
+            ("  max_age_s = 60.0", "  max_age_s = 60.0"),
+            "units.KR-GT1.tags",
+            "is mapped 2 times",
+        ),
+        (
+            "compressor_discharge_temperature:B",
+            "",
+            REDUNDANT_CDT,
+            "units.KR-GT1.tags[14].max_spread",
+            "has no max_spread",
+        ),
+        (
+            "compressor_discharge_temperature:A",
+            "  max_spread = 8.0\n",
+            REDUNDANT_CDT,
+            "units.KR-GT1.tags",
+            "sensor label(s) A",
+        ),
+        (
+            "compressor_discharge_temperature:toolonglabel",
+            "  max_spread = 8.0\n",
+            REDUNDANT_CDT,
+            "units.KR-GT1.tags[14].measurement",
+            "sensor label 'toolonglabel'",
+        ),
+        (
+            "exhaust_temperature",
+            "  max_spread = 8.0\n",
+            REDUNDANT_CDT,
+            "units.KR-GT1.tags[14].max_spread",
+            "applies to redundant sensors only",
+        ),
+        (
+            "exhaust_temperature",
+            "  stuck_band = 0.5\n",
+            REDUNDANT_CDT,
+            "units.KR-GT1.tags[14].stuck_band",
+            "without stuck_after_s",
+        ),
+    ],
+)
+def test_redundancy_and_fault_key_errors(
+    tmp_path: Path,
+    measurement: str,
+    extra: str,
+    first: tuple[str, str],
+    key: str,
+    text: str,
+) -> None:
+    issues = [
+        i for i in _issues(_redundant(tmp_path, measurement, extra, first)) if i.key_path == key
+    ]
+    assert any(text in i.message for i in issues), issues
+    if "mapped 2 times" in text:
+        assert any('"compressor_discharge_temperature:A"' in i.fix for i in issues)
+
+
+def test_check_accepts_a_labelled_group(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    path = _redundant(tmp_path, "compressor_discharge_temperature:B", "  max_spread = 8.0\n")
+    assert cli.main(["check", "-c", str(path)]) == 0
+    assert capsys.readouterr().out.startswith("OK: 3 units, 39 tags")

@@ -330,3 +330,22 @@ def test_urls_are_redacted_and_checked() -> None:
         Store("postgresql+asyncpg://bray@db/brayscope")
     with pytest.raises(ValueError, match="unsupported database"):
         Store("mysql+pymysql://bray@db/brayscope")
+
+
+def test_aux_and_sensor_readings_share_the_readings_table(store: Store) -> None:
+    # auxiliary values and the sensors of a redundant pair are readings like any other;
+    # two sensors of one measurement at the same source time are two rows (own names)
+    base = _readings(1)[0]
+    names = (
+        "aux.bearing1_vibration",
+        "compressor_discharge_temperature:A",
+        "compressor_discharge_temperature:B",
+    )
+    rows = [
+        Reading(base.unit, n, 0.0045 + i, T0, T0 + 0.1, "good", f"kestrel/gt1/x{i}", 4.5, "mm/s")
+        for i, n in enumerate(names)
+    ]
+    assert store.write_readings(rows) == 3
+    assert store.write_readings(rows) == 0
+    got = store.readings_between("KR-GT1", T0 - 1, T0 + 1, measurement="aux.bearing1_vibration")
+    assert [(r["measurement"], r["value"]) for r in got] == [("aux.bearing1_vibration", 0.0045)]
