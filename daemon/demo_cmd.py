@@ -34,7 +34,7 @@ import sys
 import tempfile
 import time
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from importlib import resources
 from pathlib import Path
 from typing import Any
@@ -395,16 +395,24 @@ class SummaryRow:
 
 
 def summary_row(unit: str, row: Mapping[str, Any] | None) -> SummaryRow:
-    """Format a stored result row (``Store.latest_results``) for the live summary."""
+    """Format a stored result row (``Store.latest_results``) for the live summary.
+
+    ``steady`` is ``warm-up`` until the steady-state test has enough samples, then ``yes`` or
+    ``no``; ``status`` is ``ok`` or the names of the reason bits other than ``not_steady``
+    (which the steady column shows).
+    """
+    from models.status import Reason
+
     if row is None:
         return SummaryRow(unit, "—", "—", "—", "—", "—", "—", "—", "—", "waiting for data")
     ts: Any = row.get("ts")
     ts_text = ts.strftime("%H:%M:%S") if hasattr(ts, "strftime") else str(ts)
     steady = row.get("steady")
-    steady_text = "—" if steady is None else ("yes" if steady else "no")
-    reasons = str(row.get("reasons") or "").strip()
-    status = int(row.get("status") or 0)
-    status_text = "ok" if status == 0 else (reasons.replace(",", ", ") or f"bits {status:#x}")
+    steady_text = "warm-up" if steady is None else ("yes" if steady else "no")
+    # the steady column already says "no": the not_steady warning is not repeated as status
+    reasons = [r for r in str(row.get("reasons") or "").split(",") if r and r != "not_steady"]
+    status = int(row.get("status") or 0) & ~int(Reason.NOT_STEADY)
+    status_text = "ok" if status == 0 else (", ".join(reasons) or f"bits {status:#x}")
     return SummaryRow(
         unit=unit,
         ts=ts_text,
@@ -478,7 +486,11 @@ class DemoOptions:
     http_port : int
         Port of the daemon's metrics/API on 127.0.0.1; 0 picks 9478 if free, else any.
     interval_s : float
-        Seconds between simulator scans and between daemon ticks.
+        Seconds between simulator scans and between daemon ticks (0.25 s: the steady-state
+        test gets enough samples to judge a held dispatch block within seconds).
+    hold_s : float
+        Wall seconds each dispatch block is held (0: no blocks, the clock always runs at
+        ``speed``).
     plain : bool or None
         Plain lines instead of the live table; None decides by whether stdout is a terminal.
     """
@@ -488,7 +500,8 @@ class DemoOptions:
     speed: float = 3600.0
     port: int = 0
     http_port: int = 0
-    interval_s: float = 1.0
+    interval_s: float = 0.25
+    hold_s: float = 40.0
     plain: bool | None = None
 
 
@@ -549,10 +562,11 @@ async def _show(  # noqa: PLR0917
         return [summary_row(u, row_from_result(last[u]) if u in last else None) for u in units]
 
     if plain:
+        # at most one line per unit per second, whatever the tick
         while not stop.is_set():
             for u in units:
                 r = runtime.last_results.get(u)
-                if r is not None and shown.get(u) != r.ts:
+                if r is not None and r.ts >= shown.get(u, -math.inf) + 1.0:
                     shown[u] = r.ts
                     print(summary_row(u, row_from_result(r)).line(), file=out, flush=True)
             with contextlib.suppress(TimeoutError):
@@ -615,7 +629,8 @@ async def run_demo(opts: DemoOptions, out: Any = None) -> int:
         return 1
 
     runtime = Runtime(plant)
-    simulator = PlantSimulator(plant, kestrel_ridge_scenario(speed=opts.speed))
+    scenario = replace(kestrel_ridge_scenario(speed=opts.speed), hold_s=opts.hold_s)
+    simulator = PlantSimulator(plant, scenario)
     prefix = plant.daemon.results_topic_prefix
     sim_topics = simulator.topics
     info = [
@@ -626,8 +641,15 @@ async def run_demo(opts: DemoOptions, out: Any = None) -> int:
         f"  metrics, API  http://127.0.0.1:{http_port}/metrics  /api/units  live page /",
         f"  database      {db_path}",
         f"  plant file    {plant_path.resolve()}",
-        f"  scenario      {opts.speed / 3600.0:g} h per second; compressors foul "
-        f"{simulator.scenario.fouling_speedup:g}x faster still",
+        f"  scenario      {opts.speed / 3600.0:g} h per second for {scenario.opening_s:g} s, then "
+        + (
+            f"dispatch blocks held {scenario.hold_s:g} s in real time with "
+            f"{scenario.move_s:g} s fast-forward between them"
+            if scenario.hold_s > 0
+            else "the same speed throughout"
+        )
+        + f"; compressors foul {scenario.fouling_speedup:g}x faster than the scenario clock",
+        f"  tick          {plant.daemon.tick_s:g} s (steady test warms up over 20 ticks)",
         "  " + CAUTION,
     ]
     print("\n".join(info), file=out, flush=True)
@@ -734,6 +756,17 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
         help="port of metrics/API on 127.0.0.1 (default 9478 if free, else any)",
     )  # fmt: skip
     p.add_argument(
+        "--tick", type=float, default=0.25, metavar="S",
+        help="seconds between simulator scans and daemon ticks (default 0.25)",
+    )  # fmt: skip
+    p.add_argument(
+        "--hold", type=float, default=40.0, metavar="S",
+        help=(
+            "wall seconds each dispatch block is held in real time after the opening "
+            "fast-forward (default 40; 0 keeps the fast clock throughout)"
+        ),
+    )  # fmt: skip
+    p.add_argument(
         "--plain", action="store_true", default=None,
         help="print one plain line per unit per tick instead of the live table",
     )  # fmt: skip
@@ -748,6 +781,12 @@ def run(args: argparse.Namespace) -> int:
     if not args.speed > 0:
         print("brayscope demo: --speed must be > 0", file=sys.stderr)
         return 2
+    if not 0.05 <= args.tick <= 60:
+        print("brayscope demo: --tick must be between 0.05 and 60 seconds", file=sys.stderr)
+        return 2
+    if not args.hold >= 0:
+        print("brayscope demo: --hold must be >= 0 seconds", file=sys.stderr)
+        return 2
     logging.basicConfig(
         level=os.environ.get("BRAYSCOPE_DEMO_LOG", "WARNING").upper(),
         format="%(asctime)s %(levelname)s %(name)s: %(message)s",
@@ -759,6 +798,8 @@ def run(args: argparse.Namespace) -> int:
         speed=args.speed,
         port=args.port,
         http_port=args.http_port,
+        interval_s=args.tick,
+        hold_s=args.hold,
         plain=args.plain,
     )
     try:

@@ -56,6 +56,8 @@ __all__ = [
     "PlantSimulator",
     "UnitScenario",
     "ambient_conditions",
+    "aux_values",
+    "dispatch_level",
     "fouling_state",
     "kestrel_ridge_scenario",
     "publish_loop",
@@ -83,7 +85,23 @@ NOISE: Mapping[str, tuple[float, bool]] = {
     "fuel_temperature": (0.2, False),
     "generator_power": (0.0008, True),
     "air_mass_flow": (0.01, True),
+    "aux.bearing1_vibration": (0.00015, False),
+    "aux.lube_oil_temperature": (0.2, False),
 }
+
+
+def aux_values(ambient_temperature: float, level: float, online: bool) -> dict[str, float]:
+    """Auxiliary sensor values [SI] (invented): bearing vibration velocity [m/s] and lube-oil
+    header temperature [K]; plant files may map them as ``aux.*`` tags."""
+    if not online:
+        return {
+            "aux.bearing1_vibration": 0.0002,
+            "aux.lube_oil_temperature": ambient_temperature + 15.0,
+        }
+    return {
+        "aux.bearing1_vibration": 0.0018 + 0.0012 * level,
+        "aux.lube_oil_temperature": 322.0 + 0.25 * (ambient_temperature - ISO_TEMPERATURE),
+    }
 
 
 @dataclass(frozen=True)
@@ -153,8 +171,12 @@ class UnitScenario:
         Offline wash: start [scenario h] (NaN: no wash), duration [h], fraction of the
         recoverable loss it removes [1].
     load_min, load_max, load_period_h : float
-        Load following: firing between ``load_min`` and ``load_max`` of base-load turbine
-        inlet temperature rise over a period [h]; equal values mean base load.
+        Load following during the opening fast-forward: firing between ``load_min`` and
+        ``load_max`` of base-load turbine inlet temperature rise over a period [h]; equal
+        values mean base load.
+    dispatch : tuple of float
+        Firing levels of the dispatch blocks after the opening fast-forward, used in turn
+        (the first block holds the level reached at its start); ``(1.0,)`` is base load.
     faults : tuple of FaultSpec
         Scripted sensor faults.
     """
@@ -179,6 +201,7 @@ class UnitScenario:
     load_min: float = 1.0
     load_max: float = 1.0
     load_period_h: float = 6.0
+    dispatch: tuple[float, ...] = (1.0,)
     faults: tuple[FaultSpec, ...] = ()
 
 
@@ -190,7 +213,17 @@ class PlantScenario:
     ----------
     units : tuple of UnitScenario
     speed : float
-        Scenario seconds per wall second.
+        Scenario seconds per wall second while fast-forwarding.
+    opening_s : float
+        Wall seconds of the opening fast-forward (at ``speed``) before the first dispatch
+        block [s].
+    hold_s : float
+        Wall seconds each dispatch block is held [s]; 0 runs the whole scenario at ``speed``.
+    hold_speed : float
+        Scenario seconds per wall second while a block is held (1: real time).
+    move_s : float
+        Wall seconds of fast-forward between two blocks, during which the loads ramp to the
+        next block's level [s].
     fouling_speedup : float
         Extra acceleration of fouling relative to the scenario clock.
     start_h : float
@@ -207,6 +240,10 @@ class PlantScenario:
 
     units: tuple[UnitScenario, ...]
     speed: float = 3600.0
+    opening_s: float = 24.0
+    hold_s: float = 45.0
+    hold_speed: float = 1.0
+    move_s: float = 6.0
     fouling_speedup: float = 60.0
     start_h: float = 6.0
     mean_temperature: float = 287.15
@@ -216,9 +253,56 @@ class PlantScenario:
     site_pressure: float = 99500.0
     seed: int = 20260601
 
+    @property
+    def _holding(self) -> bool:
+        return self.hold_s > 0.0 and self.hold_speed < self.speed
+
     def scenario_hours(self, elapsed_s: float | FloatArray) -> Any:
-        """Scenario hours since the start for ``elapsed_s`` wall seconds [h]."""
-        return np.asarray(elapsed_s, dtype=np.float64) * self.speed / 3600.0
+        """Scenario hours since the start for ``elapsed_s`` wall seconds [h].
+
+        Notes
+        -----
+        A time-lapse clock: ``opening_s`` wall seconds at ``speed``, then cycles of a held
+        dispatch block (``hold_s`` at ``hold_speed``) and a move to the next block
+        (``move_s`` at ``speed``).  Without holds, simply ``elapsed_s * speed / 3600``.
+        """
+        e = np.maximum(np.asarray(elapsed_s, dtype=np.float64), 0.0)
+        if not self._holding:
+            return e * self.speed / 3600.0
+        fast, slow = self.speed, self.hold_speed
+        first = np.minimum(e, self.opening_s) * fast
+        rest = np.maximum(e - self.opening_s, 0.0)
+        period = self.hold_s + self.move_s
+        n = np.floor(rest / period)
+        r = rest - n * period
+        cycles = n * (self.hold_s * slow + self.move_s * fast)
+        part = np.minimum(r, self.hold_s) * slow + np.maximum(r - self.hold_s, 0.0) * fast
+        return (first + cycles + part) / 3600.0
+
+    def dispatch_phase(self, hours: float | FloatArray) -> tuple[Any, Any]:
+        """Dispatch block and ramp progress at scenario time ``hours``.
+
+        Returns
+        -------
+        block : ndarray of int
+            -1 during the opening fast-forward, else the index of the block held or being
+            ramped to.
+        progress : ndarray of float
+            Progress of the ramp towards ``block`` (0..1); 1 while the block is held.
+        """
+        h = np.asarray(hours, dtype=np.float64)
+        if not self._holding:
+            return np.full(h.shape, -1), np.ones(h.shape)
+        h_open = self.opening_s * self.speed / 3600.0
+        h_hold = self.hold_s * self.hold_speed / 3600.0
+        h_move = self.move_s * self.speed / 3600.0
+        rest = h - h_open
+        n = np.floor(np.maximum(rest, 0.0) / (h_hold + h_move))
+        r = np.maximum(rest, 0.0) - n * (h_hold + h_move)
+        moving = r >= h_hold
+        block = np.where(rest < 0.0, -1, np.where(moving, n + 1, n)).astype(np.int64)
+        progress = np.where(moving, (r - h_hold) / max(h_move, 1e-12), 1.0)
+        return block, np.clip(progress, 0.0, 1.0)
 
 
 def kestrel_ridge_scenario(speed: float = 3600.0, fouling_speedup: float = 60.0) -> PlantScenario:
@@ -269,6 +353,7 @@ def kestrel_ridge_scenario(speed: float = 3600.0, fouling_speedup: float = 60.0)
         wash_start_h=10.0,
         wash_hours=2.0,
         wash_recovery=0.85,
+        dispatch=(1.0, 1.0, 0.9, 1.0),
         faults=(
             FaultSpec("ambient_temperature", "value", every_s=17.0, value=999.0),
             FaultSpec("ambient_relative_humidity", "stuck", start_h=4.0, end_h=16.0),
@@ -291,6 +376,7 @@ def kestrel_ridge_scenario(speed: float = 3600.0, fouling_speedup: float = 60.0)
         load_min=0.70,
         load_max=1.0,
         load_period_h=8.0,
+        dispatch=(0.85, 1.0, 0.75, 0.92, 0.8, 1.0),
         faults=(FaultSpec("exhaust_pressure", "nan_token", every_s=29.0),),
     )
     return PlantScenario(units=(gt1, gt2, gt3), speed=speed, fouling_speedup=fouling_speedup)
@@ -402,6 +488,41 @@ def load_fraction(unit: UnitScenario, hours: float | FloatArray) -> FloatArray:
     m = 0.5 * (unit.load_max + unit.load_min)
     a = 0.5 * (unit.load_max - unit.load_min)
     return np.asarray(m + a * np.cos(2.0 * np.pi * h / max(unit.load_period_h, 1e-9)))
+
+
+def dispatch_level(
+    unit: UnitScenario, scenario: PlantScenario, hours: float | FloatArray
+) -> FloatArray:
+    """Firing level 0..1 of a unit on the time-lapse clock: plateaus with ramps between [1].
+
+    Parameters
+    ----------
+    unit : UnitScenario
+    scenario : PlantScenario
+        Its clock decides where the dispatch blocks are.
+    hours : float or ndarray
+        Scenario hours since the start [h].
+
+    Notes
+    -----
+    During the opening fast-forward the level is :func:`load_fraction`.  Block 0 holds the
+    level reached at its start; block k >= 1 holds ``unit.dispatch[(k - 1) % n]``.  Between
+    blocks the level moves along a smooth ramp, L = L_a + (L_b - L_a) (3 s^2 - 2 s^3) with s
+    the progress of the move (0..1), so loads change only while the clock fast-forwards.
+    """
+    h = np.asarray(hours, dtype=np.float64)
+    block, s = scenario.dispatch_phase(h)
+    h_open = scenario.opening_s * scenario.speed / 3600.0
+    level0 = float(load_fraction(unit, h_open))
+    levels = np.asarray(unit.dispatch or (1.0,), dtype=np.float64)
+
+    def level_of(k: Any) -> FloatArray:
+        k = np.asarray(k)
+        return np.asarray(np.where(k <= 0, level0, levels[np.maximum(k - 1, 0) % levels.size]))
+
+    ease = s * s * (3.0 - 2.0 * s)
+    ramp = level_of(block - 1) + (level_of(block) - level_of(block - 1)) * ease
+    return np.asarray(np.where(block < 0, load_fraction(unit, h), ramp))
 
 
 def operating_point(
@@ -620,10 +741,12 @@ class PlantSimulator:
             )
             if not online:
                 truth.values = shutdown_values(amb, u.fuel_temperature)
+                truth.values.update(aux_values(amb["ambient_temperature"], 0.0, False))
                 out[name] = truth
                 continue
             amb_a = {k: np.atleast_1d(v) for k, v in amb.items()}
-            op = operating_point(u, amb_a, health, np.atleast_1d(load_fraction(u, hours)))
+            level = np.atleast_1d(dispatch_level(u, sc, hours))
+            op = operating_point(u, amb_a, health, level)
             par = cfg.effective_parameters()
             meas, status = simulate(
                 **amb_a,
@@ -633,6 +756,7 @@ class PlantSimulator:
                 **{k: v for k, v in par.items() if k in _SIM_PARAMETERS},
             )
             truth.values = {k: float(v[0]) for k, v in meas.items()}
+            truth.values.update(aux_values(amb["ambient_temperature"], float(level[0]), True))
             truth.status = int(status[0])
             out[name] = truth
         return out

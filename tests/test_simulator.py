@@ -136,3 +136,63 @@ def test_scripted_faults_are_quarantined_with_their_reason(plant) -> None:
     # the stuck humidity sensor (scenario hours 4..16 = wall seconds 4..16 at 1 h/s) repeats
     assert len(set(map(str, stuck[5:15]))) == 1
     assert len(set(map(str, stuck[20:30]))) > 1
+
+
+def test_time_lapse_clock_holds_blocks_in_real_time_and_fast_forwards_between() -> None:
+    sc = kestrel_ridge_scenario()
+    assert sc.hold_s > 0 and sc.hold_speed == 1.0
+    t_open = sc.opening_s
+    h = sc.scenario_hours(np.array([0.0, t_open, t_open + sc.hold_s]))
+    # the opening runs at `speed`, a held block at real time (an hour per 3600 wall seconds)
+    assert h[1] == pytest.approx(t_open * sc.speed / 3600.0)
+    assert h[2] - h[1] == pytest.approx(sc.hold_s / 3600.0)
+    period = sc.hold_s + sc.move_s
+    h2 = sc.scenario_hours(np.array([t_open + period, t_open + 2 * period]))
+    assert h2[1] - h2[0] == pytest.approx((sc.hold_s + sc.move_s * sc.speed) / 3600.0)
+    # monotone, no jumps
+    e = np.linspace(0.0, 300.0, 3001)
+    assert np.all(np.diff(sc.scenario_hours(e)) > 0)
+
+
+def test_dispatch_levels_are_flat_in_blocks_and_ramp_between() -> None:
+    from daemon.simulator import dispatch_level
+
+    sc = kestrel_ridge_scenario()
+    gt3 = next(u for u in sc.units if u.name == "KR-GT3")
+    period = sc.hold_s + sc.move_s
+    for k in range(1, 4):
+        start = sc.opening_s + k * period
+        e = np.linspace(start + 0.01, start + sc.hold_s - 0.01, 50)
+        lv = dispatch_level(gt3, sc, sc.scenario_hours(e))
+        assert np.ptp(lv) == pytest.approx(0.0, abs=1e-12)
+        assert lv[0] == pytest.approx(gt3.dispatch[(k - 1) % len(gt3.dispatch)])
+    # between block 1 and block 2 the level moves monotonically from one to the other
+    e = np.linspace(sc.opening_s + 2 * period - sc.move_s, sc.opening_s + 2 * period, 60)
+    lv = dispatch_level(gt3, sc, sc.scenario_hours(e))
+    assert lv[0] == pytest.approx(gt3.dispatch[0], abs=1e-6)
+    assert lv[-1] == pytest.approx(gt3.dispatch[1], abs=1e-6)
+    assert np.all(np.sign(np.diff(lv)) * np.sign(gt3.dispatch[1] - gt3.dispatch[0]) >= 0)
+
+
+def test_r_statistic_finds_the_held_blocks_steady_and_the_moves_transient(plant) -> None:
+    # Cao & Rhinehart (1995) R-statistic with its default filter factors: R near 1 when the
+    # signal only carries noise, R >> 1 while it drifts; the simulated generator power must
+    # show both, at the demo's 0.25 s scan
+    from models.steady import r_statistic, steady_flags
+
+    sc = kestrel_ridge_scenario()
+    sim = PlantSimulator(plant, sc, noise=True, faults=False)
+    dt = 0.25
+    t = np.arange(0.0, sc.opening_s + 2 * (sc.hold_s + sc.move_s), dt)
+    power = []
+    for e in t:
+        sim.step(T0 + e)
+        power.append(sim._noisy("generator_power", sim.truth["KR-GT1"].values["generator_power"]))
+    flags = steady_flags(r_statistic(np.array(power)))
+    period = sc.hold_s + sc.move_s
+    for k in (1, 2):
+        hold_end = sc.opening_s + k * period - sc.move_s
+        late = (t > hold_end - 10.0) & (t < hold_end)
+        assert flags[late].mean() > 0.9, k  # steady by the end of each held block
+    opening = (t > 8.0) & (t < sc.opening_s)
+    assert flags[opening].mean() < 0.05  # the fast-forward is a transient
