@@ -14,6 +14,13 @@ Rules (per unit, per measurement):
   value makes the measurement NaN with that bit until a newer usable reading arrives: a failing
   sensor is never papered over by its last good value.  Timestamp rejections mark nothing (a
   clock problem is not a sensor fault).
+* **Sensor faults.**  A tag with ``stuck_after_s`` whose readings stay within ``stuck_band``
+  (tag units, from the first value of the run) for longer than that is NaN with
+  ``INPUT_STUCK``; redundant sensors (``NAME:LABEL`` tags) are combined by their mean when the
+  usable ones agree within ``max_spread`` and give NaN with ``INPUT_DISAGREE`` when they do
+  not.  Both also set ``INPUT_BAD_QUALITY`` so that compute refuses the value.
+* **Auxiliary values** (``aux.<name>``) are held with the same rules but never enter a
+  snapshot: :meth:`Assembler.aux`.
 * **Tick output.**  ``values`` NaN and a :class:`models.status.Reason` bit where the value is
   missing (``INPUT_MISSING``: never received), stale (``INPUT_STALE``) or bad (see above);
   ``age_s`` NaN when nothing was ever held.
@@ -34,6 +41,7 @@ The only I/O-like dependency is the clock, injected.
 
 from __future__ import annotations
 
+import functools
 import math
 import time
 from collections.abc import Callable, Iterable, Mapping, Sequence
@@ -48,6 +56,8 @@ from models.steady import DEFAULT_ENTER, DEFAULT_LEAVE, RStatisticState, steady_
 
 __all__ = [
     "BAD_MARK_REASONS",
+    "DISAGREE_BITS",
+    "STUCK_BITS",
     "Assembler",
     "AssemblyCounters",
     "UnitSpec",
@@ -87,12 +97,29 @@ class UnitSpec:
         but never enter the snapshot (see :meth:`Assembler.aux`).
     extra_measurements : tuple of str
         Measurements the unit type needs but no tag maps (always ``INPUT_MISSING``).
+    max_spread : mapping of str to float
+        Canonical measurement of a redundant group → largest allowed difference between its
+        usable sensors [SI]; absent = no limit.
+    stuck : mapping of str to (float, float)
+        Reading name → (``stuck_after_s`` [s], ``stuck_band`` [the tag's own unit]) of the
+        stuck-sensor test; absent = test off.
     """
 
     name: str
     unit_type: str
     max_age_s: Mapping[str, float]
     extra_measurements: tuple[str, ...] = ()
+    max_spread: Mapping[str, float] = field(default_factory=dict)
+    stuck: Mapping[str, tuple[float, float]] = field(default_factory=dict)
+
+    @functools.cached_property
+    def sensors(self) -> dict[str, tuple[str, ...]]:
+        """Redundant sensors: canonical measurement → its sensor reading names."""
+        out: dict[str, list[str]] = {}
+        for m in self.max_age_s:
+            if SENSOR_SEP in m and not is_aux(m):
+                out.setdefault(_canonical(m), []).append(m)
+        return {k: tuple(v) for k, v in out.items()}
 
     @property
     def measurements(self) -> tuple[str, ...]:
@@ -110,15 +137,58 @@ class UnitSpec:
     def from_config(cls, name: str, unit: Any) -> UnitSpec:
         """Build from a ``daemon.config.UnitConfig`` (tags → measurements and max ages)."""
         ages: dict[str, float] = {}
+        spread: dict[str, float] = {}
+        stuck: dict[str, tuple[float, float]] = {}
         for tag in unit.tags:
-            ages[tag.measurement] = max(ages.get(tag.measurement, 0.0), float(tag.max_age_s))
+            m = tag.measurement
+            ages[m] = max(ages.get(m, 0.0), float(tag.max_age_s))
+            s = getattr(tag, "max_spread_si", None)
+            if s is not None:
+                c = _canonical(m)
+                spread[c] = min(spread.get(c, math.inf), float(s))
+            after = getattr(tag, "stuck_after_s", None)
+            if after is not None:
+                stuck[m] = (float(after), float(getattr(tag, "stuck_band", 0.0)))
         extra: tuple[str, ...] = ()
         try:
             ut = unit.unit_type
             extra = tuple(f.name for f in ut.measurements if f.required)
         except (RuntimeError, AttributeError):
             extra = ()
-        return cls(name=name, unit_type=str(unit.type), max_age_s=ages, extra_measurements=extra)
+        return cls(
+            name=name,
+            unit_type=str(unit.type),
+            max_age_s=ages,
+            extra_measurements=extra,
+            max_spread=spread,
+            stuck=stuck,
+        )
+
+
+#: (value [SI], Reason bits, age [s]) of one reading name at one tick.
+_Channel = tuple[float, int, float]
+
+#: Bits of a stuck sensor.  ``INPUT_BAD_QUALITY`` rides along so that every consumer that
+#: knows only the older input bits (``daemon.compute.INPUT_REASONS``) still refuses the value.
+STUCK_BITS = int(Reason.INPUT_STUCK | Reason.INPUT_BAD_QUALITY)
+#: Bits of a redundant group whose sensors disagree (same reasoning).
+DISAGREE_BITS = int(Reason.INPUT_DISAGREE | Reason.INPUT_BAD_QUALITY)
+
+
+def _raw_number(r: Reading) -> float:
+    """The reading's value in the tag's own unit when it is a plain number (the stuck band
+    is in those units), else its SI value."""
+    raw = r.raw_value
+    if isinstance(raw, bool):
+        return r.value
+    if isinstance(raw, int | float):
+        return float(raw)
+    if isinstance(raw, str):  # readings replayed from storage keep the raw JSON text
+        try:
+            return float(raw)
+        except ValueError:
+            return r.value
+    return r.value
 
 
 def is_aux(name: str) -> bool:
@@ -137,6 +207,9 @@ class _Held:
     quality: str = ""
     bad_ts: float = -math.inf
     bad_bit: int = 0
+    run_value: float = math.nan  # first value of the current run within the stuck band
+    run_start: float = -math.inf  # its source time
+    stuck: bool = False
 
 
 @dataclass
@@ -154,6 +227,7 @@ class AssemblyCounters:
 
     older_ignored: int = 0
     unknown_ignored: int = 0
+    stuck_flagged: int = 0  # times a sensor entered the stuck state
 
 
 class Assembler:
@@ -224,6 +298,9 @@ class Assembler:
                 self.counters.older_ignored += 1
                 continue
             h.value, h.source_ts, h.quality = r.value, r.source_ts, r.quality
+            rule = st.spec.stuck.get(r.measurement)
+            if rule is not None:
+                self._track_run(h, r, rule)
         for q in quarantined:
             bit = BAD_MARK_REASONS.get(q.reason)
             if bit is None or q.unit is None or q.measurement is None:
@@ -236,6 +313,16 @@ class Assembler:
             ts = q.source_ts if q.source_ts is not None else q.received_ts
             if ts > h.bad_ts:
                 h.bad_ts, h.bad_bit = ts, int(bit)
+
+    def _track_run(self, h: _Held, r: Reading, rule: tuple[float, float]) -> None:
+        after_s, band = rule
+        x = _raw_number(r)
+        if not abs(x - h.run_value) <= band:  # moved out of the band (or first value): new run
+            h.run_value, h.run_start = x, r.source_ts
+        was = h.stuck
+        h.stuck = r.source_ts - h.run_start > after_s
+        if h.stuck and not was:
+            self.counters.stuck_flagged += 1
 
     # -- ticks -----------------------------------------------------------------------------
 
@@ -285,7 +372,7 @@ class Assembler:
             return {}
         return {m: self._channel(st, m, ts) for m in st.spec.aux_names}
 
-    def _channel(self, st: _UnitState, m: str, t: float) -> tuple[float, int, float]:
+    def _channel(self, st: _UnitState, m: str, t: float) -> _Channel:
         h = st.held.get(m)
         max_age = st.spec.max_age_s.get(m, math.inf)
         if h is None:
@@ -299,14 +386,48 @@ class Assembler:
             return math.nan, bits, age
         if age > max_age:
             return math.nan, int(Reason.INPUT_STALE), age
+        if h.stuck:
+            return math.nan, STUCK_BITS, age
         return h.value, 0, age
+
+    def _group(self, st: _UnitState, m: str, names: tuple[str, ...], t: float) -> _Channel:
+        """Combine the redundant sensors of ``m``: the mean of the usable ones when they agree
+        within ``max_spread``, NaN with ``INPUT_DISAGREE`` when they do not."""
+        chans = [self._channel(st, n, t) for n in names]
+        usable = [(v, a) for v, b, a in chans if b == 0]
+        if not usable:
+            seen = [b for _, b, _ in chans if b != int(Reason.INPUT_MISSING)]
+            bits = 0
+            for b in seen:
+                bits |= b
+            ages = [a for _, _, a in chans if not math.isnan(a)]
+            return math.nan, bits or int(Reason.INPUT_MISSING), min(ages, default=math.nan)
+        vals = [v for v, _ in usable]
+        age = max(a for _, a in usable)
+        if max(vals) - min(vals) > st.spec.max_spread.get(m, math.inf):
+            return math.nan, DISAGREE_BITS, age
+        return math.fsum(vals) / len(vals), 0, age
+
+    def channels(self, unit: str, ts: float) -> dict[str, _Channel]:
+        """Every reading name of ``unit`` (plain measurements, each redundant sensor,
+        auxiliary values) at ``ts``: name → (value [SI], Reason bits, age [s]).  For looking
+        at one sensor of a group; empty for an unknown unit."""
+        st = self._units.get(unit)
+        if st is None:
+            return {}
+        return {m: self._channel(st, m, ts) for m in st.spec.max_age_s}
 
     def _snapshot(self, st: _UnitState, t: float) -> Snapshot:
         values: dict[str, float] = {}
         quality: dict[str, int] = {}
         ages: dict[str, float] = {}
+        sensors = st.spec.sensors
         for m in st.spec.measurements:
-            values[m], quality[m], ages[m] = self._channel(st, m, t)
+            names = sensors.get(m)
+            if names is None:
+                values[m], quality[m], ages[m] = self._channel(st, m, t)
+            else:
+                values[m], quality[m], ages[m] = self._group(st, m, names, t)
         return Snapshot(
             unit=st.spec.name,
             unit_type=st.spec.unit_type,

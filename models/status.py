@@ -78,6 +78,8 @@ class Reason(IntFlag):
     INPUT_STALE = 1 << 14  # set by the daemon: an input exceeded its maximum age
     INPUT_BAD_QUALITY = 1 << 15  # set by the daemon: source quality flag bad
     HUMIDITY_SATURATED = 1 << 16  # water partial pressure capped at saturation
+    INPUT_STUCK = 1 << 17  # set by the daemon: a sensor's value has not moved for too long
+    INPUT_DISAGREE = 1 << 18  # set by the daemon: redundant sensors differ beyond max_spread
 
 
 #: Reasons that are warnings: the number is computed but deserves a look.
