@@ -5,8 +5,10 @@ Tasks (one :class:`asyncio.TaskGroup`, all stopped together)::
     feed       MqttFeed: bounded inbound queue, micro-batches, commit → ack, batches out
                └─ commit = write readings + quarantine in a worker thread (durable before ack)
     ingest     batches → Assembler.ingest (sample-and-hold per measurement)
-    ticks      every tick_s (aligned to UTC multiples): Assembler.tick → compute_tick (one
-               vectorised call per group, worker thread) → write_results → metrics → publish
+    ticks      every tick_s (aligned to UTC multiples): wait until the readings received
+               before the boundary are committed and ingested (MqttFeed.wait_delivered,
+               bounded), then Assembler.tick → compute_tick (one vectorised call per group,
+               worker thread) → write_results → metrics → publish
     publisher  retained results and online/offline status (last will)
     db watch   SELECT 1 every db_probe_s: readiness and brayscope_database_up
     retention  purge rows older than database.retention_days, hourly
@@ -36,6 +38,7 @@ import json
 import logging
 import math
 import ssl
+import threading
 import time
 from collections import deque
 from collections.abc import Mapping, Sequence
@@ -59,6 +62,7 @@ from models.status import WARNING_REASONS, reason_names
 
 __all__ = [
     "MAX_PENDING_RESULTS",
+    "TICK_SLACK_S",
     "Runtime",
     "result_row",
     "row_to_api",
@@ -73,6 +77,9 @@ _OWN_TASKS = frozenset(
 
 #: Result rows kept while the database refuses them (oldest dropped first, counted).
 MAX_PENDING_RESULTS = 10_000
+
+#: Wake-up after a tick boundary [s] (timer granularity; the tick then waits for the feed).
+TICK_SLACK_S = 0.002
 
 
 def tls_context_for(broker: Any, base_dir: Path | None = None) -> ssl.SSLContext | None:
@@ -233,6 +240,13 @@ class Runtime:
         self._http_ready = asyncio.Event()
         self.ticks = 0
         self.last_results: dict[str, Result] = {}
+        # longest wait of a tick for the readings received before its boundary [s]
+        self._drain_timeout_s = min(1.0, 0.5 * float(plant.daemon.tick_s))
+        # SQLite has one writer: readings commits and result writes take turns here (in
+        # arrival order) instead of meeting in SQLite's busy handler, which sleeps in steps
+        # of up to 100 ms
+        sqlite = getattr(getattr(self.store, "url", None), "get_backend_name", lambda: "")()
+        self._write_lock: Any = threading.Lock() if sqlite == "sqlite" else contextlib.nullcontext()
         self._warn_missing_columns()
 
     def _check_own_topics(self) -> None:
@@ -367,9 +381,14 @@ class Runtime:
         # frozen dataclasses vs the store's attribute protocols: same fields, read-only
         readings: Any = batch.readings
         quarantined: Any = batch.quarantined
-        self.store.write_readings(readings)
-        if quarantined:
-            self.store.write_quarantine(quarantined)
+        with self._write_lock:
+            self.store.write_readings(readings)
+            if quarantined:
+                self.store.write_quarantine(quarantined)
+
+    def _write_results(self, rows: list[ResultRow]) -> int:
+        with self._write_lock:
+            return int(self.store.write_results(rows))
 
     async def _commit(self, batch: Batch) -> None:
         """Make a batch durable (the feed acknowledges it after this returns)."""
@@ -390,7 +409,13 @@ class Runtime:
     async def _ticks(self) -> None:
         while True:
             now = self.clock()
-            await asyncio.sleep(max(0.0, self.assembler.next_tick_at(now) - now) + 0.05)
+            await asyncio.sleep(max(0.0, self.assembler.next_tick_at(now) - now) + TICK_SLACK_S)
+            # close the tick as soon as the boundary has passed and every reading received
+            # before it is committed and ingested (bounded: a database outage must not hold
+            # the ticks back)
+            delivered = await self.feed.wait_delivered(self._drain_timeout_s)
+            if not delivered:
+                log.debug("tick: readings received before the boundary still uncommitted")
             snaps = self.assembler.tick(self.clock())
             try:
                 await self.process_snapshots(snaps)
@@ -427,7 +452,7 @@ class Runtime:
             return
         rows = list(self._pending)
         try:
-            n = await asyncio.to_thread(self.store.write_results, rows)
+            n = await asyncio.to_thread(self._write_results, rows)
         except Exception as exc:
             self.metrics.result_write_failures_total.inc()
             self._set_db(False, f"result write failed: {exc.__class__.__name__}")

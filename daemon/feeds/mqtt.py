@@ -37,7 +37,6 @@ so it cannot be held back until the commit.
 from __future__ import annotations
 
 import asyncio
-import contextlib
 import logging
 import random
 import ssl
@@ -216,6 +215,7 @@ def backoff_delay(
 
 @dataclass(frozen=True, slots=True)
 class _Inbound:
+    seq: int
     generation: int
     mid: int
     qos: int
@@ -289,7 +289,7 @@ class MqttFeed:
         tls_context: ssl.SSLContext | None = None,
         filters: Sequence[str] | None = None,
         max_items: int = 1000,
-        max_wait_s: float = 0.25,
+        max_wait_s: float = 0.1,
         linger_s: float = 0.01,
         commit_attempts: int = 3,
         backoff_initial_s: float = 0.5,
@@ -327,7 +327,16 @@ class MqttFeed:
         self.sequences = SequenceTracker()
         self._v5 = str(broker.protocol) == "5"
         self._inbound: asyncio.Queue[_Inbound] = asyncio.Queue(maxsize=broker.queue_size)
-        self._out: asyncio.Queue[Batch] = asyncio.Queue(maxsize=2)
+        # (batch, seq of its last message, messages in it)
+        self._out: asyncio.Queue[tuple[Batch, int, int]] = asyncio.Queue(maxsize=2)
+        # delivery accounting (see wait_delivered): every queued message gets a number; a
+        # message is "outstanding" from its arrival until its batch was handed to the
+        # consumer and the consumer asked for the next one, or until it was discarded
+        self._recv_seq = 0
+        self._done_seq = 0
+        self._inflight = 0
+        self._flush_seq = 0
+        self._progress = asyncio.Event()
         self._generation = 0
         self._overflowed: set[int] = set()
         self._lost = asyncio.Event()
@@ -345,12 +354,23 @@ class MqttFeed:
         await self.aclose()
 
     async def aclose(self) -> None:
-        """Stop the feed: disconnect; unacknowledged messages stay with the broker."""
-        if self._task is not None:
-            self._task.cancel()
-            with contextlib.suppress(asyncio.CancelledError):
-                await self._task
-            self._task = None
+        """Stop the feed: disconnect; unacknowledged messages stay with the broker.
+
+        The task is cancelled again until it has ended: on Python 3.11 a cancellation can be
+        swallowed by ``asyncio.wait_for`` (CPython gh-86296) inside aiomqtt or paho glue.
+        Re-raises the error that stopped the feed, if any (not a cancellation).
+        """
+        task = self._task
+        if task is None:
+            return
+        while not task.done():
+            task.cancel()
+            await asyncio.wait({task}, timeout=0.5)
+        self._task = None
+        if not task.cancelled():
+            exc = task.exception()
+            if exc is not None and not isinstance(exc, asyncio.CancelledError):
+                raise exc
 
     @property
     def connected(self) -> bool:
@@ -372,13 +392,62 @@ class MqttFeed:
         task = self._task
         while True:
             get = asyncio.ensure_future(self._out.get())
-            done, _ = await asyncio.wait({get, task}, return_when=asyncio.FIRST_COMPLETED)
-            if get in done:
-                yield get.result()
+            try:
+                done, _ = await asyncio.wait({get, task}, return_when=asyncio.FIRST_COMPLETED)
+            finally:
+                if not get.done():
+                    get.cancel()  # never leave a pending get behind (cancel, close)
+            if get in done and not get.cancelled():
+                batch, last_seq, n = get.result()
+                yield batch
+                # the consumer is back for the next one: this batch is delivered
+                self._done_seq = max(self._done_seq, last_seq)
+                self._release(n)
                 continue
-            get.cancel()
             task.result()  # re-raise the feed's error
             return
+
+    async def wait_delivered(self, timeout_s: float) -> bool:
+        """Wait until every message received so far went through the consumer.
+
+        "Through" means committed, acknowledged, handed out by :meth:`batches` and the
+        consumer came back for the next batch (or discarded for redelivery after a lost
+        connection).  The batch being collected is closed early as soon as it holds the last
+        of those messages.  The runtime calls this at a tick boundary so that the tick's
+        snapshot includes every reading received before the boundary.
+
+        Parameters
+        ----------
+        timeout_s : float
+            Longest wait [s] (a database outage must not hold ticks back for long).
+
+        Returns
+        -------
+        bool
+            True when delivered, False on timeout.
+        """
+        target = self._recv_seq
+        self._flush_seq = target
+        loop = asyncio.get_running_loop()
+        deadline = loop.time() + timeout_s
+        while not self._delivered(target):
+            remaining = deadline - loop.time()
+            if remaining <= 0:
+                return False
+            self._progress.clear()
+            try:
+                async with asyncio.timeout(remaining):
+                    await self._progress.wait()
+            except TimeoutError:
+                return self._delivered(target)
+        return True
+
+    def _delivered(self, target: int) -> bool:
+        return self._done_seq >= target or (self._inbound.empty() and self._inflight == 0)
+
+    def _release(self, n: int) -> None:
+        self._inflight -= n
+        self._progress.set()
 
     async def run(self, handler: Callable[[Batch], Awaitable[None]]) -> None:
         """Call ``handler`` for every committed batch until cancelled."""
@@ -460,6 +529,7 @@ class MqttFeed:
 
     def _on_message(self, gen: int, m: paho.MQTTMessage) -> None:
         item = _Inbound(
+            seq=self._recv_seq + 1,
             generation=gen,
             mid=m.mid,
             qos=m.qos,
@@ -473,6 +543,7 @@ class MqttFeed:
             return
         try:
             self._inbound.put_nowait(item)
+            self._recv_seq = item.seq
         except asyncio.QueueFull:
             self.stats.queue_overflow(1)
             if item.qos > 0:
@@ -489,6 +560,7 @@ class MqttFeed:
         # and the broker redelivers those messages anyway
         while not self._inbound.empty():
             self._inbound.get_nowait()
+        self._progress.set()
         async with client:
             if self._v5:
                 opts = SubscribeOptions(
@@ -513,7 +585,11 @@ class MqttFeed:
             while True:
                 msgs = await self._collect(gen)
                 if msgs:
-                    await self._process(inner, msgs)
+                    try:
+                        await self._process(inner, msgs)
+                    except BaseException:
+                        self._release(len(msgs))  # not delivered; the broker sends them again
+                        raise
                     self._session_committed = True
                 if gen in self._overflowed and self._inbound.empty():
                     self._overflowed.discard(gen)
@@ -522,34 +598,52 @@ class MqttFeed:
                     raise _Reconnect("connection lost")
 
     async def _collect(self, gen: int) -> list[_Inbound]:
-        """Wait for messages and gather one micro-batch of this connection's messages."""
+        """Wait for messages and gather one micro-batch of this connection's messages.
+
+        The batch closes at ``max_items``, after ``max_wait_s``, after ``linger_s`` without a
+        new message, or as soon as it holds the message a :meth:`wait_delivered` waits for.
+        """
         loop = asyncio.get_running_loop()
         out: list[_Inbound] = []
         if self._inbound.empty():
             get = asyncio.ensure_future(self._inbound.get())
             lost = asyncio.ensure_future(self._lost.wait())
-            done, _ = await asyncio.wait({get, lost}, return_when=asyncio.FIRST_COMPLETED)
-            lost.cancel()
-            if get not in done:
-                get.cancel()  # Queue.get leaves the item in the queue when cancelled
+            try:
+                done, _ = await asyncio.wait({get, lost}, return_when=asyncio.FIRST_COMPLETED)
+            finally:
+                lost.cancel()
+                if not get.done():
+                    get.cancel()  # Queue.get leaves the item in the queue when cancelled
+            if get not in done or get.cancelled():
                 return []
             out.append(get.result())
         deadline = loop.time() + self.max_wait_s
-        while len(out) < self.max_items:
-            if not self._inbound.empty():
-                out.append(self._inbound.get_nowait())
-                continue
-            remaining = deadline - loop.time()
-            if remaining <= 0 or self._lost.is_set():
-                break
-            try:
-                out.append(
-                    await asyncio.wait_for(self._inbound.get(), min(remaining, self.linger_s))
-                )
-            except TimeoutError:
-                break
+        try:
+            while len(out) < self.max_items:
+                if out and out[0].seq <= self._flush_seq <= out[-1].seq:
+                    break  # a tick waits for this batch
+                if not self._inbound.empty():
+                    out.append(self._inbound.get_nowait())
+                    continue
+                remaining = deadline - loop.time()
+                if remaining <= 0 or self._lost.is_set():
+                    break
+                # asyncio.timeout, not asyncio.wait_for: on 3.11 wait_for can swallow a
+                # cancellation that races with the get completing (CPython gh-86296)
+                try:
+                    async with asyncio.timeout(min(remaining, self.linger_s)):
+                        out.append(await self._inbound.get())
+                except TimeoutError:
+                    break
+        except BaseException:
+            self._progress.set()  # taken, never delivered: the broker sends them again
+            raise
         self.stats.queue_depth(self._inbound.qsize())
-        return [m for m in out if m.generation == gen]
+        mine = [m for m in out if m.generation == gen]
+        self._inflight += len(mine)
+        if len(mine) < len(out):
+            self._progress.set()
+        return mine
 
     async def _process(self, inner: paho.Client, msgs: list[_Inbound]) -> None:
         results = [self.decoder.decode(m.topic, m.payload, m.received_ts) for m in msgs]
@@ -585,6 +679,7 @@ class MqttFeed:
             if m.qos > 0:
                 inner.ack(m.mid, m.qos)
         self.stats.committed(len(msgs), elapsed)
+        last_seq = max(m.seq for m in msgs)
         self.stats.readings_received(batch.received)
         for unit, n in batch.accepted_by_unit().items():
             self.stats.readings_accepted(unit, n)
@@ -594,4 +689,4 @@ class MqttFeed:
             missing = self.sequences.observe(r.topic, r.seq)
             if missing:
                 self.stats.sequence_gap(self.decoder.unit_of(r.topic), missing)
-        await self._out.put(batch)
+        await self._out.put((batch, last_seq, len(msgs)))
