@@ -23,6 +23,7 @@ COMMANDS: dict[str, str] = {
     "demo": "daemon.demo_cmd",
     "bench-live": "daemon.bench_live",
     "run": "daemon.run_cmd",
+    "trend": "daemon.trend_cmd",
 }
 
 CAUTION = (
