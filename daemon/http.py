@@ -10,11 +10,15 @@ Routes
     200 when the broker connection is up and the database answers, else 503 with the failing
     checks (readiness).
 ``GET /api/units``, ``GET /api/units/{unit}/latest``, ``GET /api/units/{unit}/results``
-    Configured units, their newest results, results in a time range.
+    Configured units (with their new-and-clean baselines), their newest results, results in a
+    time range.
+``GET /api/units/{unit}/trend``
+    Degradation trend of one KPI for maintenance planning (:mod:`daemon.trend_cmd`).
 ``POST /api/events``
     Record an operator event (note, compressor wash, maintenance ...) in the database.
 ``GET /``
-    The live page (static HTML polling the API).
+    The live page (static HTML polling the API, plots drawn in the browser as inline SVG;
+    nothing is fetched from outside).
 
 Access: the API and metrics bind to ``127.0.0.1`` by default.  When a token is configured
 (``BRAYSCOPE_API_TOKEN`` for read and write, ``BRAYSCOPE_API_READ_TOKEN`` for read only; or
@@ -42,12 +46,14 @@ from fastapi.security import HTTPAuthorizationCredentials, HTTPBearer
 from pydantic import BaseModel, ConfigDict, Field, SecretStr
 
 from daemon import __version__
+from daemon.trend_cmd import KPIS
 
 __all__ = [
     "API_CAUTION",
     "ApiBackend",
     "EventIn",
     "ResultOut",
+    "TrendOut",
     "UnitOut",
     "create_app",
     "parse_time",
@@ -64,6 +70,10 @@ API_CAUTION = (
 MAX_RANGE = timedelta(days=31)
 #: Most rows one results query returns.
 MAX_ROWS = 50_000
+_KPI_HELP = "result to trend, one of: " + ", ".join(KPIS)
+
+#: Longest time range one trend query may span.
+MAX_TREND_RANGE = timedelta(days=400)
 
 UNIT_RE = r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$"
 KIND_RE = r"^[a-z][a-z0-9_]{0,31}$"
@@ -85,6 +95,10 @@ class UnitOut(_Out):
     unit_type: str
     description: str = ""
     results_topic: str | None = None
+    baseline: dict[str, float] = Field(
+        default_factory=dict,
+        description="new-and-clean values from the plant file, by result name",
+    )
 
 
 class UnitsOut(_Out):
@@ -117,6 +131,102 @@ class ResultsOut(_Out):
     count: int
     truncated: bool
     results: list[ResultOut]
+
+
+class TrendIntervalOut(_Out):
+    start_operating_h: float | None
+    level: float | None = Field(description="fitted KPI right after the wash (or record start)")
+    level_se: float | None
+
+
+class TrendLineOut(_Out):
+    t_ref_operating_h: float | None
+    level: float | None
+    rate_per_hour: float | None
+
+
+class TrendFitOut(_Out):
+    reason: str = Field(
+        description="ok, too_few_points, no_spread_in_fired_hours, no_wash_in_record, "
+        "constant_record"
+    )
+    rate_per_1000h: float | None = Field(
+        description="KPI change per 1000 operating hours between washes (fouling plus wear)"
+    )
+    rate_per_1000h_se: float | None
+    postwash_rate_per_1000h: float | None = Field(
+        description="change of the post-wash levels per 1000 h (what washing cannot recover); "
+        "null without a wash in the record"
+    )
+    postwash_rate_per_1000h_se: float | None
+    overall_rate_per_1000h: float | None
+    overall_rate_per_1000h_se: float | None
+    r_squared: float | None
+    residual_std: float | None
+    n: int
+    intervals: list[TrendIntervalOut]
+    current_line: TrendLineOut
+    latest_value: float | None
+
+
+class TrendWashOut(_Out):
+    operating_h: float | None
+    ts: str
+    size: float | None = Field(description="step of the KPI at the wash, in its unit")
+
+
+class TrendForecastOut(_Out):
+    threshold: float
+    limit: Literal["lower", "upper"]
+    line: Literal["current", "nonrecoverable", "overall"]
+    k: float
+    status: str = Field(description="ahead, already_beyond, never, no_fit")
+    operating_h: float | None
+    operating_h_low: float | None
+    operating_h_high: float | None
+    band_closed: bool = Field(description="false: the rate is not significant at this k")
+    hours_after_last: float | None
+    operating_fraction: float | None = Field(
+        description="operating hours per calendar hour over the record (for the date estimate)"
+    )
+    estimated_date: str | None
+
+
+class TrendPointOut(_Out):
+    operating_h: float | None
+    ts: str
+    value: float | None
+    n: int
+
+
+class TrendOut(_Out):
+    """Degradation trend of one KPI (see ``brayscope trend --help``)."""
+
+    unit: str
+    kpi: str
+    kpi_unit: str
+    caution: str
+    time_basis: str
+    since: str
+    until: str
+    max_gap_s: float
+    fired_hours_at_start: float
+    first_ts: str | None
+    last_ts: str | None
+    n_results: int
+    n_firing: int
+    n_steady: int
+    operating_hours: float
+    bin_h: float
+    n_points: int
+    noise_std: float | None
+    min_step: float | None
+    window: int
+    baseline: float | None
+    fit: TrendFitOut
+    washes: list[TrendWashOut]
+    forecast: TrendForecastOut | None
+    points: list[TrendPointOut]
 
 
 class HealthOut(_Out):
@@ -274,6 +384,7 @@ def create_app(
             raise HTTPException(status_code=403, detail="read-only token: writes not allowed")
 
     units_by_name = {u["name"]: u for u in backend.units_info()}
+    baselines = _baselines(backend, list(units_by_name))
 
     def known_unit(unit: str) -> str:
         if unit not in units_by_name:
@@ -337,7 +448,10 @@ def create_app(
         return UnitsOut(
             site=backend.site,
             caution=API_CAUTION.replace("**", ""),
-            units=[UnitOut(**u) for u in backend.units_info()],
+            units=[
+                UnitOut(**{"baseline": baselines.get(u["name"], {}), **u})
+                for u in backend.units_info()
+            ],
         )
 
     @app.get(
@@ -392,6 +506,87 @@ def create_app(
             results=[ResultOut(**r) for r in rows],
         )
 
+    @app.get(
+        "/api/units/{unit}/trend",
+        response_model=TrendOut,
+        tags=["trends"],
+        dependencies=[Depends(need_read)],
+        responses={**errors, 422: {"model": ErrorOut, "description": "bad parameters"}},
+    )
+    async def trend(  # noqa: PLR0917
+        unit: Annotated[str, Path(max_length=64)],
+        kpi: Annotated[
+            str,
+            Query(max_length=64, description=_KPI_HELP),
+        ] = "compressor_isentropic_efficiency",
+        since: Annotated[
+            str | None, Query(max_length=64, description="ISO 8601 or epoch s; default until-90d")
+        ] = None,
+        until: Annotated[
+            str | None, Query(max_length=64, description="ISO 8601 or epoch s; default now")
+        ] = None,
+        threshold: Annotated[
+            float | None,
+            Query(description="planner's limit in the KPI's stored unit; adds a forecast"),
+        ] = None,
+        line: Annotated[
+            Literal["current", "nonrecoverable", "overall"],
+            Query(description="line to forecast with (current: no further wash)"),
+        ] = "current",
+        bin_h: Annotated[
+            float | None, Query(gt=0, le=1e4, description="operating hours per averaged point")
+        ] = None,
+        min_step: Annotated[
+            float | None, Query(gt=0, description="smallest wash step, KPI unit")
+        ] = None,
+        window: Annotated[
+            int | None, Query(ge=2, le=10_000, description="points per step-test window")
+        ] = None,
+        max_gap_s: Annotated[
+            float, Query(gt=0, le=86400 * 7, description="longest interval counted as operating")
+        ] = 600.0,
+        fired_hours_at_start: Annotated[
+            float, Query(ge=0, le=1e7, description="the unit's fired hours at the first result")
+        ] = 0.0,
+    ) -> TrendOut | JSONResponse:
+        """Degradation trend of a KPI from steady, valid results: rate per 1000 operating
+        hours between washes and of the post-wash levels, wash steps, and the operating
+        hours at which the fitted line reaches ``threshold`` (±2 standard errors).
+
+        Operating hours are counted from result timestamps while the unit fires (fuel flow
+        > 0); brayscope stores no fired-hours counter.  A statistical estimate for planning,
+        not a maintenance instruction."""
+        from daemon.trend_cmd import TrendRecord, collect_async, trend_report
+
+        known_unit(unit)
+        if kpi not in KPIS:
+            return JSONResponse({"detail": _KPI_HELP}, 422)
+        try:
+            t1 = parse_time(until, datetime.now(UTC))
+            t0 = parse_time(since, t1 - timedelta(days=90))
+        except (ValueError, OverflowError, OSError):
+            return JSONResponse({"detail": "since/until: ISO 8601 or epoch seconds"}, 422)
+        if t1 <= t0 or t1 - t0 > MAX_TREND_RANGE:
+            return JSONResponse({"detail": "need since < until, at most 400 days apart"}, 422)
+        record = TrendRecord(KPIS[kpi], max_gap_s=max_gap_s)
+
+        async def fetch(u: str, a: float, b: float) -> list[dict[str, Any]]:
+            return await backend.results(u, a, b, MAX_ROWS + 1)
+
+        await collect_async(fetch, unit, t0.timestamp(), t1.timestamp(), record, limit=MAX_ROWS)
+        base = baselines.get(unit, {}).get(kpi)
+        rep = trend_report(
+            record,
+            threshold=threshold,
+            which=line,
+            bin_h=bin_h,
+            min_step=min_step,
+            window=window,
+            fired_hours_at_start=fired_hours_at_start,
+            baseline=base,
+        )
+        return TrendOut(unit=unit, since=_iso(t0), until=_iso(t1), **rep)
+
     @app.post(
         "/api/events",
         response_model=EventOut,
@@ -421,6 +616,27 @@ def create_app(
         return JSONResponse({"detail": f"temporarily unavailable: {exc}"}, status_code=503)
 
     return app
+
+
+def _baselines(backend: Any, units: list[str]) -> dict[str, dict[str, float]]:
+    """New-and-clean baselines by unit and result name, from the backend's plant file.
+
+    Uses ``backend.plant`` (the runtime's loaded plant file) when there is one; a baseline
+    key without its ``_kJ_per_kWh`` suffix names the kJ/kWh result.
+    """
+    from daemon.trend_cmd import baseline_of
+
+    plant = getattr(backend, "plant", None)
+    if plant is None or not hasattr(plant, "units"):
+        return {}
+    out: dict[str, dict[str, float]] = {}
+    for u in units:
+        if u not in plant.units:
+            continue
+        keys = getattr(plant.units[u], "baseline", {}) or {}
+        names = {k if not k.endswith("heat_rate") else f"{k}_kJ_per_kWh" for k in keys}
+        out[u] = {n: v for n in names if (v := baseline_of(plant, u, n)) is not None}
+    return out
 
 
 def _live_page() -> str:

@@ -46,6 +46,10 @@ __all__ = [
     "KpiSpec",
     "TrendRecord",
     "add_parser",
+    "baseline_of",
+    "collect",
+    "collect_async",
+    "format_report",
     "operating_hours",
     "run",
     "trend_report",
@@ -694,6 +698,31 @@ def collect(
     while a < t1:
         b = min(a + step, t1)
         rows = fetch(unit, a, b)
+        queries += 1
+        if limit is not None and len(rows) > limit and b - a > 1.0:
+            step = (b - a) / 2.0
+            continue
+        record.add(rows)
+        step = chunk_s if rows else min(step * 2.0, 64.0 * chunk_s)
+        a = b
+    return queries
+
+
+async def collect_async(
+    fetch: Any,
+    unit: str,
+    t0: float,
+    t1: float,
+    record: TrendRecord,
+    *,
+    chunk_s: float = 6 * 3600.0,
+    limit: int | None = None,
+) -> int:
+    """:func:`collect` for an awaitable ``fetch`` (the HTTP API's backend)."""
+    a, step, queries = t0, chunk_s, 0
+    while a < t1:
+        b = min(a + step, t1)
+        rows = await fetch(unit, a, b)
         queries += 1
         if limit is not None and len(rows) > limit and b - a > 1.0:
             step = (b - a) / 2.0

@@ -268,3 +268,82 @@ def test_no_server_errors_on_arbitrary_queries(
         assert r.status_code < 500, (path, p, r.status_code, r.text)
         if r.status_code == 200:
             json.loads(r.text)
+
+
+class TrendBackend(FakeBackend):
+    """Stored results of a compressor losing 0.015 per 1000 h, washed at 150 operating h
+    (+0.004), one result every 10 min, all steady and firing; a plant file with a baseline."""
+
+    T0 = 1_800_000_000.0
+    RATE = -0.015  # per 1000 h
+    WASH_H = 150.0
+    STEP = 0.004
+
+    def __init__(self) -> None:
+        super().__init__()
+        from types import SimpleNamespace
+
+        import numpy as np
+
+        rng = np.random.default_rng(3)
+        self.rows: list[dict[str, Any]] = []
+        for i in range(6 * 300):
+            h = i / 6.0
+            eta = 0.872 + self.RATE / 1000.0 * h + (self.STEP if h >= self.WASH_H else 0.0)
+            r = _row("KR-GT1", self.T0 + 600.0 * i)
+            r["results"] = {"compressor_isentropic_efficiency": eta + rng.normal(0, 2e-4)}
+            r["inputs"] = {"fuel_mass_flow": 2.6, "generator_power": 4.4e7}
+            self.rows.append(r)
+        unit = SimpleNamespace(baseline={"compressor_isentropic_efficiency": 0.872})
+        self.plant = SimpleNamespace(units={"KR-GT1": unit, "KR-GT2": SimpleNamespace()})
+
+    async def results(
+        self, unit: str, since: float, until: float, limit: int
+    ) -> list[dict[str, Any]]:
+        self.queries.append((unit, since, until, limit))
+        rows = [r for r in self.rows if since <= r["ts_epoch_s"] < until and r["unit"] == unit]
+        return rows[:limit]
+
+
+def test_trend_route_returns_the_fit_washes_and_forecast() -> None:
+    b = TrendBackend()
+    c = TestClient(create_app(b))
+    r = c.get(
+        "/api/units/KR-GT1/trend",
+        params={"since": str(b.T0 - 60), "until": str(b.T0 + 400 * 3600), "threshold": "0.865"},
+    )
+    assert r.status_code == 200, r.text
+    doc = r.json()
+    # least-squares slope of a line with one level shift (Draper & Smith 1998, ch. 1)
+    assert doc["fit"]["rate_per_1000h"] == pytest.approx(b.RATE, abs=0.001)
+    assert [round(w["operating_h"]) for w in doc["washes"]] == [150]
+    assert doc["washes"][0]["size"] == pytest.approx(b.STEP, abs=5e-4)
+    assert doc["baseline"] == pytest.approx(0.872)
+    # after the wash: 0.872 + 0.004 - 0.015e-3 * 150 = 0.87375 at 150 h, so 0.865 is reached
+    # (0.87375 - 0.865) / 0.015e-3 = 583 h later: 733 h (t* = t0 + (y* - L) / r)
+    fc = doc["forecast"]
+    assert fc["status"] == "ahead"
+    assert fc["operating_h"] == pytest.approx(150 + (0.87375 - 0.865) / 0.015e-3, abs=40)
+    assert "not a maintenance instruction" in doc["caution"]
+    assert "fired hours are not stored" in doc["time_basis"]
+    # baselines appear with the units
+    units = c.get("/api/units").json()["units"]
+    assert units[0]["baseline"] == {"compressor_isentropic_efficiency": 0.872}
+    assert units[1]["baseline"] == {}
+
+
+def test_trend_route_refuses_bad_parameters_and_is_described() -> None:
+    b = TrendBackend()
+    c = TestClient(create_app(b))
+    assert c.get("/api/units/KR-GT1/trend", params={"kpi": "vibration"}).status_code == 422
+    assert c.get("/api/units/KR-GT9/trend").status_code == 404
+    r = c.get("/api/units/KR-GT1/trend", params={"since": "0", "until": str(b.T0)})
+    assert r.status_code == 422  # more than 400 days
+    spec = c.get("/openapi.json").json()
+    op = spec["paths"]["/api/units/{unit}/trend"]["get"]
+    names = {p["name"] for p in op["parameters"]}
+    assert {"kpi", "since", "until", "threshold", "line"} <= names
+    assert "TrendOut" in spec["components"]["schemas"]
+    # an empty range is an answer, not an error
+    r = c.get("/api/units/KR-GT2/trend")
+    assert r.status_code == 200 and r.json()["fit"]["reason"] == "too_few_points"
