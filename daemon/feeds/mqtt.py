@@ -549,7 +549,8 @@ class MqttFeed:
             if item.qos > 0:
                 self._overflowed.add(gen)
                 log.warning("inbound queue full: refusing messages until reconnect")
-        self.stats.queue_depth(self._inbound.qsize())
+            self.stats.queue_depth(self._inbound.qsize())
+        # (the depth is reported once per batch in _collect, not per message: cheaper)
 
     async def _session(self) -> None:
         """One connection, until it ends (by an exception)."""
