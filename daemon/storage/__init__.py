@@ -11,6 +11,7 @@ from daemon.storage.store import (
     ResultRow,
     Store,
     UnitLike,
+    quarantine_key,
     redact_url,
 )
 
@@ -21,5 +22,6 @@ __all__ = [
     "ResultRow",
     "Store",
     "UnitLike",
+    "quarantine_key",
     "redact_url",
 ]

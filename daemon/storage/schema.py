@@ -14,7 +14,8 @@ Tables
 ``results``     one row per unit and tick: KPI columns named exactly like the unit type's
                 result names (glossary), input measurements (SI, prefixed ``in_``), status
 ``readings``    raw canonical readings (SI), unique on (unit, measurement, source_ts)
-``quarantine``  rejected inputs: truncated payload bytes, topic, reason code, detail
+``quarantine``  rejected inputs: truncated payload bytes, topic, reason code, detail; unique
+                on ``natural_key`` (a redelivered message is stored once)
 ``events``      daemon events (start, stop, reconnect, database outage ...)
 """
 
@@ -210,8 +211,12 @@ quarantine = sa.Table(
     sa.Column("unit", sa.String(64), nullable=True),
     sa.Column("measurement", sa.String(64), nullable=True),
     sa.Column("source_ts", UTCDateTime(), nullable=True),
+    # SHA-256 hex of what makes two deliveries the same rejected input (migration 0002);
+    # NULL for rows written before it
+    sa.Column("natural_key", sa.String(64), nullable=True),
     sa.Index(None, "received_at"),
     sa.Index(None, "reason"),
+    sa.Index(None, "natural_key", unique=True),
 )
 
 events = sa.Table(

@@ -18,10 +18,13 @@ schema (an unknown result name needs a migration).
 
 from __future__ import annotations
 
+import hashlib
 import json
 import math
+import random
 import re
 import threading
+import time
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
@@ -38,11 +41,13 @@ from daemon.storage import schema as s
 __all__ = [
     "MAX_DETAIL_CHARS",
     "MAX_QUARANTINE_PAYLOAD",
+    "RECEIVE_TIME_DETAIL",
     "QuarantineLike",
     "ReadingLike",
     "ResultRow",
     "Store",
     "UnitLike",
+    "quarantine_key",
     "redact_url",
 ]
 
@@ -61,28 +66,88 @@ _MIGRATION_THREAD_LOCK = threading.Lock()
 
 
 class ReadingLike(Protocol):
-    """What :meth:`Store.write_readings` needs (``daemon.types.Reading`` fits)."""
+    """What :meth:`Store.write_readings` needs (``daemon.types.Reading`` fits).  Read-only
+    properties, so frozen dataclasses match."""
 
-    unit: str
-    measurement: str
-    value: float
-    source_ts: float
-    received_ts: float
-    quality: str
-    topic: str
-    raw_value: object
-    raw_uom: str
+    @property
+    def unit(self) -> str: ...
+    @property
+    def measurement(self) -> str: ...
+    @property
+    def value(self) -> float: ...
+    @property
+    def source_ts(self) -> float: ...
+    @property
+    def received_ts(self) -> float: ...
+    @property
+    def quality(self) -> str: ...
+    @property
+    def topic(self) -> str: ...
+    @property
+    def raw_value(self) -> object: ...
+    @property
+    def raw_uom(self) -> str: ...
 
 
 class QuarantineLike(Protocol):
-    """What :meth:`Store.write_quarantine` needs (``daemon.types.Quarantined`` fits)."""
+    """What :meth:`Store.write_quarantine` needs (``daemon.types.Quarantined`` fits).
+    Read-only properties, so frozen dataclasses match; ``measurement`` and ``source_ts`` are
+    read with ``getattr`` and may be absent."""
 
-    received_ts: float
-    topic: str
-    payload: bytes
-    reason: str
-    detail: str
-    unit: str | None
+    @property
+    def received_ts(self) -> float: ...
+    @property
+    def topic(self) -> str: ...
+    @property
+    def payload(self) -> bytes: ...
+    @property
+    def reason(self) -> str: ...
+    @property
+    def detail(self) -> str: ...
+    @property
+    def unit(self) -> str | None: ...
+
+
+#: Reasons whose detail text depends on the receive time (the offset of the source time):
+#: their detail is left out of the natural key.
+RECEIVE_TIME_DETAIL = frozenset({"future_timestamp", "past_timestamp"})
+
+
+def quarantine_key(q: QuarantineLike) -> str:
+    """The natural key of a rejected input: SHA-256 (hex) of what makes two deliveries the
+    same input.
+
+    Parts: topic, reason, unit, measurement, the payload as stored (first
+    :data:`MAX_QUARANTINE_PAYLOAD` bytes), the detail (except for the timestamp reasons of
+    :data:`RECEIVE_TIME_DETAIL`, whose detail holds the receive-time offset) and the time:
+    the decoded source time when known, else the receive time floored to the second.
+
+    Notes
+    -----
+    MQTT has no message identity across sessions (the packet id of a redelivery is that of
+    the new session), so the content and the source time identify a message.  Without a
+    source time (payload without ``ts``, or rejected before its ``ts`` was read:
+    ``malformed_json``, ``oversized_payload``, ``unknown_topic`` ...) only the receive second
+    is left: a redelivery received in a later second is stored again, and identical rejected
+    payloads of one topic received within one second are stored once (the rejected-readings
+    counter still counts each).
+    """
+    source_ts = getattr(q, "source_ts", None)
+    when = f"s{float(source_ts)!r}" if source_ts is not None else f"r{math.floor(q.received_ts)}"
+    detail = "" if q.reason in RECEIVE_TIME_DETAIL else (q.detail or "")[:MAX_DETAIL_CHARS]
+    h = hashlib.sha256()
+    for part in (
+        q.topic,
+        q.reason,
+        q.unit or "",
+        getattr(q, "measurement", None) or "",
+        when,
+        detail,
+    ):
+        b = part.encode("utf-8", "surrogatepass")
+        h.update(len(b).to_bytes(8, "big") + b)  # length-prefixed: no ambiguous joins
+    h.update(bytes(q.payload[:MAX_QUARANTINE_PAYLOAD]))
+    return h.hexdigest()
 
 
 class UnitLike(Protocol):
@@ -202,10 +267,11 @@ class Store:
             def _sqlite_pragmas(dbapi_conn: Any, _record: Any) -> None:
                 cur = dbapi_conn.cursor()
                 try:
+                    # the busy timeout first: switching a new file to WAL takes a lock too
+                    cur.execute(f"PRAGMA busy_timeout={timeout}")
                     cur.execute("PRAGMA journal_mode=WAL")
                     cur.execute("PRAGMA synchronous=NORMAL")
                     cur.execute("PRAGMA foreign_keys=ON")
-                    cur.execute(f"PRAGMA busy_timeout={timeout}")
                 finally:
                     cur.close()
 
@@ -247,9 +313,36 @@ class Store:
         cfg.attributes["connection"] = connection
         return cfg
 
-    def upgrade(self, revision: str = "head") -> None:
-        """Apply the migrations up to ``revision`` (idempotent; safe with parallel replicas
-        on PostgreSQL, which serialise on an advisory lock)."""
+    def upgrade(self, revision: str = "head", *, lock_wait_s: float = 120.0) -> None:
+        """Apply the migrations up to ``revision`` (idempotent; safe with parallel replicas,
+        which serialise on PostgreSQL's advisory lock or SQLite's write lock).
+
+        Parameters
+        ----------
+        revision : str
+            Target revision.
+        lock_wait_s : float
+            SQLite: how long to keep retrying when the database stays locked by another
+            process (each attempt also waits ``busy_timeout``) [s].
+        """
+        if self.dialect != "sqlite":
+            self._upgrade_once(revision)
+            return
+        deadline = time.monotonic() + lock_wait_s
+        delay = 0.05
+        while True:
+            try:
+                self._upgrade_once(revision)
+                return
+            except sa.exc.OperationalError as exc:
+                if not _sqlite_busy(exc) or time.monotonic() + delay > deadline:
+                    raise
+            # another replica holds the file: the pool may keep a connection in a bad state
+            self.engine.dispose()
+            time.sleep(delay * (0.5 + random.random()))
+            delay = min(delay * 2.0, 2.0)
+
+    def _upgrade_once(self, revision: str) -> None:
         from alembic import command
 
         # alembic's context/op proxies are process-global: one migration at a time per process
@@ -407,7 +500,9 @@ class Store:
             return self._insert_ignore(conn, s.readings, rows)
 
     def write_quarantine(self, items: Iterable[QuarantineLike]) -> int:
-        """Store rejected inputs (payload truncated to :data:`MAX_QUARANTINE_PAYLOAD` bytes)."""
+        """Store rejected inputs (payload truncated to :data:`MAX_QUARANTINE_PAYLOAD` bytes);
+        an item whose natural key (:func:`quarantine_key`) exists is skipped, so a redelivered
+        message is stored once.  Returns the number of rows inserted; committed on return."""
         rows = [
             {
                 "received_at": s.to_utc_datetime(q.received_ts),
@@ -418,14 +513,14 @@ class Store:
                 "unit": q.unit,
                 "measurement": getattr(q, "measurement", None),
                 "source_ts": _optional_ts(getattr(q, "source_ts", None)),
+                "natural_key": quarantine_key(q),
             }
             for q in items
         ]
         if not rows:
             return 0
         with self.engine.begin() as conn:
-            conn.execute(sa.insert(s.quarantine), rows)
-        return len(rows)
+            return self._insert_ignore(conn, s.quarantine, rows)
 
     def write_event(self, kind: str, detail: str = "", ts: float | datetime | None = None) -> None:
         """Record a daemon event (``kind`` such as ``"start"``, ``"db_outage"``)."""
@@ -531,6 +626,12 @@ class Store:
                         conn.execute(table.delete().where(col < cutoff)).rowcount
                     )
         return counts
+
+
+def _sqlite_busy(exc: sa.exc.OperationalError) -> bool:
+    """True for SQLite's "database is locked" / "busy" errors (worth a retry)."""
+    text = str(getattr(exc, "orig", exc)).lower()
+    return "locked" in text or "busy" in text
 
 
 def _optional_ts(ts: float | datetime | None) -> datetime | None:
