@@ -498,3 +498,83 @@ async def test_broker_restart_feed_reconnects_and_loses_nothing(tmp_path, proto,
         proc.terminate()
         proc.wait(timeout=10)
     assert stats.reconnects >= 1
+
+
+# -- stopping and delivery accounting -----------------------------------------------------------
+
+
+async def test_aclose_cancels_again_when_a_cancel_is_swallowed() -> None:
+    # CPython gh-86296: on 3.11 asyncio.wait_for can swallow a cancellation; aclose must
+    # cancel until the task has really ended (a single cancel would leave it running).
+    feed = MqttFeed(
+        Broker("127.0.0.1", 1, "5", client_id="t"), plant_decoder("x"), commit=Recorder().commit
+    )
+    swallowed = 0
+
+    async def stubborn() -> None:
+        nonlocal swallowed
+        while True:
+            try:
+                await asyncio.sleep(10)
+            except asyncio.CancelledError:
+                swallowed += 1
+                if swallowed >= 2:
+                    raise
+
+    feed._task = asyncio.create_task(stubborn())
+    await asyncio.sleep(0)
+    await asyncio.wait_for(feed.aclose(), 5.0)
+    assert swallowed == 2
+    assert feed._task is None
+
+
+async def test_cancelled_batches_leaves_no_pending_get() -> None:
+    feed = MqttFeed(
+        Broker("127.0.0.1", 1, "5", client_id="t"), plant_decoder("x"), commit=Recorder().commit
+    )
+    feed._task = asyncio.create_task(asyncio.sleep(30))
+    consumer = asyncio.create_task(consume(feed))
+    await asyncio.sleep(0.05)
+    consumer.cancel()
+    with contextlib.suppress(asyncio.CancelledError):
+        await consumer
+    await asyncio.sleep(0)
+    # a get left behind would take the next batch out of the queue and drop it
+    feed._out.put_nowait((Batch.from_results([], dups=0), 0, 0))
+    await asyncio.sleep(0.05)
+    assert feed._out.qsize() == 1
+    await feed.aclose()
+
+
+async def test_wait_delivered_covers_every_message_received_before_it(
+    mqtt_broker, protocol, prefix
+) -> None:
+    b = broker_for(mqtt_broker, protocol)
+    rec = Recorder()
+    seen: list[float] = []
+    # a long batch window: without the early close the wait would take about 2 s
+    feed = spy_feed(b, plant_decoder(prefix), rec, max_wait_s=2.0, linger_s=2.0)
+    try:
+        async with feed:
+            await feed.wait_connected(TIMEOUT_S)
+
+            async def ingest() -> None:
+                async for batch in feed.batches():
+                    seen.extend(r.raw_value for r in batch.readings)  # type: ignore[misc]
+
+            task = asyncio.create_task(ingest())
+            async with publisher(b) as pub:
+                for i in range(20):
+                    await pub.publish(f"{prefix}/gt1/TT-AMB", json.dumps(10.0 + i), qos=1)
+                await wait_for(lambda: feed._recv_seq >= 20)
+            t0 = time.monotonic()
+            assert await feed.wait_delivered(5.0)
+            waited = time.monotonic() - t0
+            # every message received before the call was consumed when it returned
+            assert sorted(seen) == [10.0 + i for i in range(20)]
+            assert waited < 1.0
+            task.cancel()
+            with contextlib.suppress(asyncio.CancelledError):
+                await task
+    finally:
+        await drop_session(b)

@@ -337,6 +337,7 @@ class MqttFeed:
         self._inflight = 0
         self._flush_seq = 0
         self._progress = asyncio.Event()
+        self._flush_evt = asyncio.Event()
         self._generation = 0
         self._overflowed: set[int] = set()
         self._lost = asyncio.Event()
@@ -428,6 +429,7 @@ class MqttFeed:
         """
         target = self._recv_seq
         self._flush_seq = target
+        self._flush_evt.set()
         loop = asyncio.get_running_loop()
         deadline = loop.time() + timeout_s
         while not self._delivered(target):
@@ -618,6 +620,7 @@ class MqttFeed:
             if get not in done or get.cancelled():
                 return []
             out.append(get.result())
+            self._inflight += 1
         deadline = loop.time() + self.max_wait_s
         try:
             while len(out) < self.max_items:
@@ -625,25 +628,39 @@ class MqttFeed:
                     break  # a tick waits for this batch
                 if not self._inbound.empty():
                     out.append(self._inbound.get_nowait())
+                    self._inflight += 1
                     continue
                 remaining = deadline - loop.time()
                 if remaining <= 0 or self._lost.is_set():
                     break
-                # asyncio.timeout, not asyncio.wait_for: on 3.11 wait_for can swallow a
-                # cancellation that races with the get completing (CPython gh-86296)
+                # asyncio.wait, not asyncio.wait_for: on 3.11 wait_for can swallow a
+                # cancellation that races with the get completing (CPython gh-86296); a
+                # wait_delivered() call wakes this wait to close the batch at once
+                self._flush_evt.clear()
+                get = asyncio.ensure_future(self._inbound.get())
+                flush = asyncio.ensure_future(self._flush_evt.wait())
                 try:
-                    async with asyncio.timeout(min(remaining, self.linger_s)):
-                        out.append(await self._inbound.get())
-                except TimeoutError:
-                    break
+                    done, _ = await asyncio.wait(
+                        {get, flush},
+                        timeout=min(remaining, self.linger_s),
+                        return_when=asyncio.FIRST_COMPLETED,
+                    )
+                finally:
+                    flush.cancel()
+                    if not get.done():
+                        get.cancel()
+                if get in done and not get.cancelled():
+                    out.append(get.result())
+                    self._inflight += 1
+                elif flush not in done:
+                    break  # lingered long enough
         except BaseException:
-            self._progress.set()  # taken, never delivered: the broker sends them again
+            self._release(len(out))  # taken, never delivered: the broker sends them again
             raise
         self.stats.queue_depth(self._inbound.qsize())
         mine = [m for m in out if m.generation == gen]
-        self._inflight += len(mine)
         if len(mine) < len(out):
-            self._progress.set()
+            self._release(len(out) - len(mine))  # an earlier connection's: redelivered
         return mine
 
     async def _process(self, inner: paho.Client, msgs: list[_Inbound]) -> None:
