@@ -347,3 +347,17 @@ def test_trend_route_refuses_bad_parameters_and_is_described() -> None:
     # an empty range is an answer, not an error
     r = c.get("/api/units/KR-GT2/trend")
     assert r.status_code == 200 and r.json()["fit"]["reason"] == "too_few_points"
+
+
+def test_live_page_is_self_contained_and_plots_from_the_api(client: TestClient) -> None:
+    import re
+
+    page = client.get("/").text
+    # nothing fetched from outside: no external script, style, image or font; the only
+    # absolute URL is the SVG namespace name, an identifier that is never retrieved (W3C
+    # Namespaces in XML 1.0, section 2; from memory)
+    urls = set(re.findall(r"https?://[^\s\"'<>)]+", page))
+    assert urls == {"http://www.w3.org/2000/svg"}, urls
+    assert not re.search(r"<(script|link|img|iframe)[^>]+(src|href)=", page)
+    assert "/results?limit=" in page and "since=" in page  # trends come from our own API
+    assert "baseline" in page and "advisory monitoring only" in page.lower()
