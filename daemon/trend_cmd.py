@@ -535,7 +535,15 @@ def format_report(report: Mapping[str, Any], unit: str) -> str:
         latest = fit["latest_value"]
         dev = "" if latest is None else f" (latest fit {(latest - report['baseline']) * sc:+.3g})"
         lines.append(f"  baseline     {_fmt(report['baseline'], sc)} {lab}{dev}")
-    lines.append(f"  fit          {fit['reason']}, R² {_fmt(fit['r_squared'], 1, '.3f')}")
+    reason = fit["reason"]
+    if reason == "no_wash_in_record":
+        reason = "ok; no wash in the record, so no post-wash rate"
+    lines.append(f"  fit          {reason}, R² {_fmt(fit['r_squared'], 1, '.3f')}")
+    if report["operating_hours"] < 100.0:
+        lines.append(
+            "  note         fewer than 100 operating hours: the rate reflects ambient, load and "
+            "noise more than degradation"
+        )
     lines.append(
         f"  rate         {_fmt(fit['rate_per_1000h'], sc)} ± "
         f"{_fmt(fit['rate_per_1000h_se'], sc, '.2g')} {lab} per 1000 operating h "
