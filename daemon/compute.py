@@ -43,7 +43,12 @@ log = logging.getLogger("brayscope.compute")
 
 #: Snapshot quality bits that make a measurement unusable.
 INPUT_REASONS = int(
-    Reason.INPUT_MISSING | Reason.INPUT_NONPHYSICAL | Reason.INPUT_STALE | Reason.INPUT_BAD_QUALITY
+    Reason.INPUT_MISSING
+    | Reason.INPUT_NONPHYSICAL
+    | Reason.INPUT_STALE
+    | Reason.INPUT_BAD_QUALITY
+    | Reason.INPUT_STUCK
+    | Reason.INPUT_DISAGREE
 )
 
 

@@ -107,7 +107,7 @@ def test_stuck_sensor_flags_results_after_the_window_and_recovers_when_it_moves(
     assert snap.quality[CDT] & Reason.INPUT_STUCK and math.isnan(snap.values[CDT])
     assert math.isnan(res.inputs[CDT])
     assert math.isnan(res.values["compressor_isentropic_efficiency"])
-    # the value is refused through INPUT_BAD_QUALITY (see the strict xfail below for the bit)
+    # the value is refused through INPUT_BAD_QUALITY (and the specific bit: see below)
     assert res.status & Reason.INPUT_BAD_QUALITY and not res.valid
     assert res.input_quality[CDT] & Reason.INPUT_STUCK
     assert math.isfinite(res.values["heat_rate_kJ_per_kWh"])  # needs no T2
@@ -229,11 +229,6 @@ def test_a_failed_sensor_leaves_the_other_one(tmp_path: Path) -> None:
     assert not res.valid and math.isnan(res.values["compressor_isentropic_efficiency"])
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="daemon.compute.INPUT_REASONS does not yet pass INPUT_STUCK / INPUT_DISAGREE "
-    "into a result's status (the value is refused via INPUT_BAD_QUALITY meanwhile)",
-)
 def test_results_carry_the_specific_fault_bit(tmp_path: Path) -> None:
     line = Line(_pair(tmp_path))
     line.publish(T0, **{f"{CDT}_A": 670.0, f"{CDT}_B": 680.0})
