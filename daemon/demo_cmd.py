@@ -365,7 +365,7 @@ class SummaryRow:
         "η_c",
         "η_t",
         "TIT °C",
-        "HR kJ/kWh",
+        "HR",
         "corr MW",
         "steady",
         "status",
@@ -434,7 +434,16 @@ def render_table(rows: list[SummaryRow], title: str, footer: str) -> Any:
     from rich.table import Table
     from rich.text import Text
 
-    table = Table(title=title, title_justify="left", expand=False, box=box.SIMPLE_HEAD)
+    table = Table(
+        title=title,
+        title_justify="left",
+        expand=False,
+        box=box.SIMPLE_HEAD,
+        padding=(0, 1),
+        collapse_padding=True,
+        pad_edge=False,
+        show_edge=False,
+    )
     cells = [r.cells() for r in rows]
     for i, h in enumerate(SummaryRow.HEADERS):
         if h == "status":
@@ -666,7 +675,7 @@ async def run_demo(opts: DemoOptions, out: Any = None) -> int:
     title = f"{plant.site.name} — latest result per unit"
     footer = (
         f"tick {plant.daemon.tick_s:g} s · MW generator power · η_c/η_t isentropic · TIT "
-        "heat-balance turbine inlet temperature · HR heat rate (LHV) · corr MW corrected "
+        "heat-balance turbine inlet temperature · HR heat rate (LHV, kJ/kWh) · corr MW corrected "
         "power · Ctrl-C to stop"
     )
     started = time.monotonic()

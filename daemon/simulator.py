@@ -18,6 +18,12 @@ half a minute shows a trend of a point or two of compressor efficiency — real 
 weeks to do that.  Payload timestamps are wall-clock time (the daemon checks them against its
 own clock); only the physics moves fast.
 
+The clock is a time-lapse: after an opening fast-forward (``opening_s``, default 24 s, a
+scenario day) it holds *dispatch blocks* for ``hold_s`` wall seconds in real time, every load
+constant, and fast-forwards ``move_s`` seconds between them while the loads ramp to the next
+block.  A steady-state test on the daemon side therefore sees both steady periods and
+transients, and fouling still shows within the first 20 s.
+
 Scenario (defaults, see :func:`kestrel_ridge_scenario`)
 ------------------------------------------------------
 * ambient: daily cycle of temperature (±6 K about 14 °C, warmest at 15:00) and relative
@@ -25,7 +31,9 @@ Scenario (defaults, see :func:`kestrel_ridge_scenario`)
 * KR-GT1: base load, fouling from nearly clean;
 * KR-GT2: older, starts well fouled, is taken offline for a wash at scenario hour 10 for
   two hours and comes back with most of its recoverable loss recovered;
-* KR-GT3: load following between about 70 % and 100 %;
+* KR-GT3: load following between about 70 % and 100 % in the opening, then dispatch blocks;
+* after the opening fast-forward the clock holds dispatch blocks in real time, with ramps
+  between them while it fast-forwards again (:meth:`PlantScenario.scenario_hours`);
 * noise on every sensor; KR-GT1 sends ``"NaN"`` text for its compressor discharge
   temperature once in a while, KR-GT2 reports an ambient temperature of 999 °C now and then
   (out of range), KR-GT3's package controller sends a bare ``NaN`` token for its exhaust
@@ -478,6 +486,8 @@ def fouling_state(
 
 def load_fraction(unit: UnitScenario, hours: float | FloatArray) -> FloatArray:
     """Firing level 0..1 between ``load_min`` and ``load_max`` (a smooth cycle) [1].
+
+    Used during the opening fast-forward; afterwards :func:`dispatch_level` holds blocks.
 
     Notes
     -----
