@@ -53,9 +53,15 @@ def test_demo_exits_zero_and_prints_the_caution(demo_run) -> None:
     proc, _ = demo_run
     assert proc.returncode == 0, proc.stderr[-3000:]
     assert "not a protection or control system" in proc.stdout
-    # stdout is a pipe here: one plain line per unit per tick
+    # stdout is a pipe here: one plain line per unit per second
     for u in UNITS:
         assert f" {u}: load " in proc.stdout
+    # the steady column: undecided during the R-statistic's 20-sample warm-up (5 s at the
+    # 0.25 s tick), then "no" through the opening fast-forward, whose load and ambient drift
+    # far exceeds the noise (Cao & Rhinehart 1995: R >> 1 under drift); the not_steady
+    # warning is not repeated in the status column
+    assert "steady warm-up" in proc.stdout and "steady no" in proc.stdout
+    assert "not_steady" not in proc.stdout
 
 
 def test_results_for_all_units_with_plausible_values(demo_run) -> None:
