@@ -18,7 +18,7 @@ Rules (per unit, per measurement):
   (tag units, from the first value of the run) for longer than that is NaN with
   ``INPUT_STUCK``; redundant sensors (``NAME:LABEL`` tags) are combined by their mean when the
   usable ones agree within ``max_spread`` and give NaN with ``INPUT_DISAGREE`` when they do
-  not.  Both also set ``INPUT_BAD_QUALITY`` so that compute refuses the value.
+  not.  Compute refuses a value with either bit, and the result carries it.
 * **Auxiliary values** (``aux.<name>``) are held with the same rules but never enter a
   snapshot: :meth:`Assembler.aux`.
 * **Tick output.**  ``values`` NaN and a :class:`models.status.Reason` bit where the value is
@@ -168,11 +168,10 @@ class UnitSpec:
 #: (value [SI], Reason bits, age [s]) of one reading name at one tick.
 _Channel = tuple[float, int, float]
 
-#: Bits of a stuck sensor.  ``INPUT_BAD_QUALITY`` rides along so that every consumer that
-#: knows only the older input bits (``daemon.compute.INPUT_REASONS``) still refuses the value.
-STUCK_BITS = int(Reason.INPUT_STUCK | Reason.INPUT_BAD_QUALITY)
-#: Bits of a redundant group whose sensors disagree (same reasoning).
-DISAGREE_BITS = int(Reason.INPUT_DISAGREE | Reason.INPUT_BAD_QUALITY)
+#: Bits of a stuck sensor (``daemon.compute.INPUT_REASONS`` refuses the value).
+STUCK_BITS = int(Reason.INPUT_STUCK)
+#: Bits of a redundant group whose sensors disagree.
+DISAGREE_BITS = int(Reason.INPUT_DISAGREE)
 
 
 def _raw_number(r: Reading) -> float:
