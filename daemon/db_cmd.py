@@ -21,7 +21,7 @@ examples:
       creates ./brayscope-data/brayscope.sqlite (SQLite, the example's default) and its tables
   BRAYSCOPE_DATABASE_URL=postgresql+psycopg://brayscope@db.example/brayscope \\
       brayscope db current -c plant.toml
-      database revision: 0001 (head 0001, up to date)
+      database revision: 0002 (head 0002, up to date)
   brayscope db purge -c plant.toml --days 30 --dry-run
       shows how many rows are older than 30 days, deletes nothing
 

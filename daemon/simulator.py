@@ -834,7 +834,8 @@ class PlantSimulator:
     ) -> object:
         """The value of one tag as sent: in the tag's unit, rounded, or a scripted fault."""
         m = tag.measurement
-        si = vals.get(m, math.nan)
+        # a redundant sensor ("NAME:A") reads the same quantity as its group
+        si = vals.get(m, vals.get(tag.canonical, math.nan))
         baro = vals.get("ambient_pressure", self.scenario.site_pressure)
         x = tag.converter.inverse(si, baro) if math.isfinite(si) else math.nan
         x = float(f"{x:.6g}") if math.isfinite(x) else x

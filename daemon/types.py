@@ -145,7 +145,8 @@ class Snapshot:
         Measurement values [SI]; NaN where missing, stale or bad.
     quality : dict of str to int
         :class:`models.status.Reason` bits per measurement (``INPUT_STALE``,
-        ``INPUT_BAD_QUALITY``, ``INPUT_MISSING``, ``INPUT_NONPHYSICAL``); 0 when usable.
+        ``INPUT_BAD_QUALITY``, ``INPUT_MISSING``, ``INPUT_NONPHYSICAL``, ``INPUT_STUCK``,
+        ``INPUT_DISAGREE``); 0 when usable.
     age_s : dict of str to float
         Age of the held value at ``ts`` [s]; NaN when no value was ever received.
     steady : bool or None
