@@ -384,9 +384,22 @@ class Store:
         return sqlite.insert(table)
 
     def _insert_ignore(self, conn: Connection, table: sa.Table, rows: list[dict[str, Any]]) -> int:
-        """Insert ``rows``, skipping those whose key exists; return how many were new."""
+        """Insert ``rows``, skipping those whose key exists; return how many were new.
+
+        SQLite: one single-row ``INSERT ... ON CONFLICT DO NOTHING`` run with the driver's
+        ``executemany`` (one prepared statement, reused for every row), counted by the summed
+        ``rowcount`` (skipped rows change nothing, so they do not count).  Not the multi-row
+        ``VALUES`` form SQLAlchemy uses with RETURNING: its SQL text differs with the number
+        of rows, and Python's ``sqlite3`` keeps up to 128 prepared statements per connection,
+        each with up to 1000 × 9 parameters, so batches of varying size held about 90 MB of
+        statement cache (measured; see docs/benchmarks.md, "Live path").  PostgreSQL keeps
+        RETURNING (its prepared statements live in the server).
+        """
         if not rows:
             return 0
+        if self.dialect == "sqlite":
+            stmt = self._insert(table).on_conflict_do_nothing()
+            return int(conn.execute(stmt, rows).rowcount)
         key = next(iter(table.primary_key.columns))
         stmt = self._insert(table).on_conflict_do_nothing().returning(key)
         return len(conn.execute(stmt, rows).all())
