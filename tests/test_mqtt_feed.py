@@ -288,6 +288,7 @@ async def test_commit_failure_leaves_messages_unacked_and_they_come_back(
     mqtt_broker, protocol, prefix
 ) -> None:
     """The first commits fail; the feed reconnects and the broker redelivers (DUP)."""
+    mqtt_broker.require(redelivery=True)
     b = broker_for(mqtt_broker, protocol)
     rec = Recorder(fail_first=2)
     stats = MemoryFeedStats()
@@ -313,6 +314,7 @@ async def test_unacked_messages_redelivered_to_the_next_feed_process(
     mqtt_broker, protocol, prefix, mode
 ) -> None:
     """Feed A never completes a commit and stops; feed B (same client id) gets every message."""
+    mqtt_broker.require(redelivery=True)
     b = broker_for(mqtt_broker, protocol)
     decoder = plant_decoder(prefix)
     n = 25
@@ -377,6 +379,7 @@ async def test_inbound_overflow_is_counted_and_nothing_is_lost(
     Maximum = queue size; MQTT 3.1.1 has no such cap (Mosquitto's max_inflight_messages, 20 by
     default, bounds it).  Whatever the broker sends beyond the queue is refused, counted, and
     redelivered after a reconnect: the queue stays within its bound and nothing is lost."""
+    mqtt_broker.require(redelivery=True)
     b = broker_for(mqtt_broker, protocol, queue_size=4)
     n = 60
 

@@ -201,6 +201,7 @@ def _results_rows(rt: Runtime, unit: str) -> list[dict[str, Any]]:
 
 @pytest.mark.services
 async def test_live_path_end_to_end(tmp_path: Path, mqtt_broker: Any, store_url: str) -> None:
+    mqtt_broker.require(v5=True)
     print(f"broker: {mqtt_broker.describe()}; database: {store_url.rsplit('@', maxsplit=1)[-1]}")
     plant = _plant(tmp_path, broker_port=mqtt_broker.port, db=store_url)
     prefix = plant._test_prefix
@@ -278,6 +279,7 @@ async def test_bad_inputs_quarantined_counted_and_daemon_keeps_running(
     tmp_path: Path, mqtt_broker: Any
 ) -> None:
     db = f"sqlite:///{tmp_path / 'bad.sqlite'}"
+    mqtt_broker.require(v5=True)
     print(f"broker: {mqtt_broker.describe()}; database: sqlite file")
     plant = _plant(
         tmp_path, broker_port=mqtt_broker.port, db=db, max_age_s=5.0, subscriptions="parent"
