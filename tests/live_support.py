@@ -84,6 +84,56 @@ PARAMETERS = {
 }
 
 
+def require_tools(*tools: str, debian: str) -> dict[str, str]:
+    """Paths of command-line tools a test needs; skip (saying which are missing and the Debian
+    package that has them), or fail when ``BRAYSCOPE_REQUIRE_SERVICES=1`` (CI installs them)."""
+    import pytest
+
+    found = {t: shutil.which(t) for t in tools}
+    missing = [t for t, path in found.items() if path is None]
+    if missing:
+        msg = f"not on PATH: {', '.join(missing)} (Debian package {debian})"
+        if os.environ.get("BRAYSCOPE_REQUIRE_SERVICES") == "1":
+            pytest.fail(msg + "; BRAYSCOPE_REQUIRE_SERVICES=1, so this is a failure")
+        pytest.skip(msg)
+    return {t: str(path) for t, path in found.items()}
+
+
+def run_tool(*cmd: str, cwd: Path) -> None:
+    subprocess.run(cmd, cwd=cwd, check=True, capture_output=True, timeout=60)
+
+
+def make_test_pki(d: Path) -> None:
+    """Write ``ca.crt``/``ca.key`` (a self-signed CA, CA:TRUE) and ``server.crt``/``server.key``
+    (for 127.0.0.1 and localhost, signed by it) into ``d`` with the ``openssl`` command."""
+    run_tool(
+        "openssl", "req", "-x509", "-newkey", "rsa:2048", "-nodes", "-sha256", "-days", "2",
+        "-keyout", "ca.key", "-out", "ca.crt", "-subj", "/CN=Kestrel Ridge test CA",
+        "-addext", "basicConstraints=critical,CA:TRUE",
+        "-addext", "keyUsage=critical,keyCertSign,cRLSign",
+        cwd=d,
+    )  # fmt: skip
+    run_tool(
+        "openssl", "req", "-newkey", "rsa:2048", "-nodes", "-sha256", "-keyout", "server.key",
+        "-out", "server.csr", "-subj", "/CN=localhost",
+        cwd=d,
+    )  # fmt: skip
+    (d / "server.ext").write_text(
+        "basicConstraints=CA:FALSE\n"
+        "keyUsage=critical,digitalSignature,keyEncipherment\n"
+        "extendedKeyUsage=serverAuth\n"
+        "subjectAltName=IP:127.0.0.1,DNS:localhost\n"
+        "subjectKeyIdentifier=hash\n"
+        "authorityKeyIdentifier=keyid,issuer\n"
+    )
+    run_tool(
+        "openssl", "x509", "-req", "-in", "server.csr", "-CA", "ca.crt", "-CAkey", "ca.key",
+        "-CAcreateserial", "-out", "server.crt", "-days", "2", "-sha256",
+        "-extfile", "server.ext",
+        cwd=d,
+    )  # fmt: skip
+
+
 def free_port() -> int:
     with socket.socket() as s:
         s.bind(("127.0.0.1", 0))
@@ -318,9 +368,14 @@ class Subscriber:
 
 
 def run_daemon(
-    plant: Path, log: Path, *extra: str, env_extra: dict[str, str] | None = None
+    plant: Path,
+    log: Path,
+    *extra: str,
+    env_extra: dict[str, str] | None = None,
+    launcher: tuple[str, ...] = (),
 ) -> subprocess.Popen[bytes]:
-    """Start ``brayscope run -c plant`` as a child process (logs to ``log``)."""
+    """Start ``brayscope run -c plant`` as a child process (logs to ``log``); ``launcher`` is
+    a command that runs it (e.g. one that restricts the process as its service unit does)."""
     env = dict(os.environ)
     env["PYTHONPATH"] = str(ROOT) + (
         os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else ""
@@ -331,7 +386,7 @@ def run_daemon(
     env.update(env_extra or {})
     with log.open("ab") as fh:
         return subprocess.Popen(
-            [sys.executable, "-m", "daemon.cli", "run", "-c", str(plant), *extra],
+            [*launcher, sys.executable, "-m", "daemon.cli", "run", "-c", str(plant), *extra],
             cwd=plant.parent,
             env=env,
             stdout=fh,

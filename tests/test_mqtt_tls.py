@@ -35,7 +35,7 @@ from typing import Any
 
 import aiomqtt
 import pytest
-from live_support import free_port, payload, plant_toml, topic_of
+from live_support import free_port, make_test_pki, payload, plant_toml, run_tool, topic_of
 
 from daemon.config import load_plant
 from daemon.feeds.decode import Batch, Decoder
@@ -61,40 +61,6 @@ class TlsBroker:
     directory: Path
 
 
-def _run(*cmd: str, cwd: Path) -> None:
-    subprocess.run(cmd, cwd=cwd, check=True, capture_output=True, timeout=60)
-
-
-def _make_pki(d: Path) -> None:
-    """CA (self-signed, CA:TRUE) and a server certificate for 127.0.0.1 / localhost."""
-    _run(
-        "openssl", "req", "-x509", "-newkey", "rsa:2048", "-nodes", "-sha256", "-days", "2",
-        "-keyout", "ca.key", "-out", "ca.crt", "-subj", "/CN=Kestrel Ridge test CA",
-        "-addext", "basicConstraints=critical,CA:TRUE",
-        "-addext", "keyUsage=critical,keyCertSign,cRLSign",
-        cwd=d,
-    )  # fmt: skip
-    _run(
-        "openssl", "req", "-newkey", "rsa:2048", "-nodes", "-sha256", "-keyout", "server.key",
-        "-out", "server.csr", "-subj", "/CN=localhost",
-        cwd=d,
-    )  # fmt: skip
-    (d / "server.ext").write_text(
-        "basicConstraints=CA:FALSE\n"
-        "keyUsage=critical,digitalSignature,keyEncipherment\n"
-        "extendedKeyUsage=serverAuth\n"
-        "subjectAltName=IP:127.0.0.1,DNS:localhost\n"
-        "subjectKeyIdentifier=hash\n"
-        "authorityKeyIdentifier=keyid,issuer\n"
-    )
-    _run(
-        "openssl", "x509", "-req", "-in", "server.csr", "-CA", "ca.crt", "-CAkey", "ca.key",
-        "-CAcreateserial", "-out", "server.crt", "-days", "2", "-sha256",
-        "-extfile", "server.ext",
-        cwd=d,
-    )  # fmt: skip
-
-
 def _wait_port(port: int, proc: subprocess.Popen[bytes], log: Path) -> None:
     import socket
 
@@ -113,8 +79,8 @@ def tls_broker() -> Iterator[TlsBroker]:
     # a directory of our own, readable by the unprivileged user mosquitto may drop to
     d = Path(tempfile.mkdtemp(prefix="brayscope-tls-"))
     try:
-        _make_pki(d)
-        _run("mosquitto_passwd", "-b", "-c", "passwd", USER, PASSWORD, cwd=d)
+        make_test_pki(d)
+        run_tool("mosquitto_passwd", "-b", "-c", "passwd", USER, PASSWORD, cwd=d)
         port = free_port()
         (d / "mosquitto.conf").write_text(
             "per_listener_settings false\n"
