@@ -611,17 +611,33 @@ def test_bytes_per_row_match_the_documented_figures(store_url: str) -> None:
 
 
 def _nginx_test(tmp_path: Path, site: str) -> subprocess.CompletedProcess[str]:
-    """`nginx -t` of a main configuration that includes ``site`` as Debian's does."""
+    """`nginx -t` of a main configuration that includes ``site`` as Debian's does.  nginx -t
+    binds the listen addresses, so ports 80/443 become free loopback ports (and the IPv6
+    listeners are left out: a test host may have no IPv6); logs and temporary files go to
+    ``tmp_path`` so that it runs without root too."""
     nginx = require_tools("nginx", "openssl", debian="nginx, openssl")["nginx"]
     certs = tmp_path / "certs"
     if not (certs / "server.crt").exists():
         certs.mkdir()
         make_test_pki(certs)
-    site = site.replace("/etc/nginx/tls/brayscope.crt", str(certs / "server.crt"))
-    site = site.replace("/etc/nginx/tls/brayscope.key", str(certs / "server.key"))
+    for old, new in (
+        ("/etc/nginx/tls/brayscope.crt", str(certs / "server.crt")),
+        ("/etc/nginx/tls/brayscope.key", str(certs / "server.key")),
+        ("listen 80;", f"listen 127.0.0.1:{free_port()};"),
+        ("listen 443 ssl;", f"listen 127.0.0.1:{free_port()} ssl;"),
+        ("listen [::]:80;", ""),
+        ("listen [::]:443 ssl;", ""),
+    ):
+        assert old in site, old
+        site = site.replace(old, new)
     (tmp_path / "site.conf").write_text(site)
+    temp = "".join(
+        f"    {kind}_temp_path {tmp_path}/{kind};\n"
+        for kind in ("client_body", "proxy", "fastcgi", "uwsgi", "scgi")
+    )
     (tmp_path / "nginx.conf").write_text(
-        f"pid {tmp_path}/nginx.pid;\nevents {{}}\nhttp {{\n    include {tmp_path}/site.conf;\n}}\n"
+        f"pid {tmp_path}/nginx.pid;\nevents {{}}\nhttp {{\n    access_log {tmp_path}/access.log;\n"
+        f"{temp}    include {tmp_path}/site.conf;\n}}\n"
     )
     return subprocess.run(
         [
