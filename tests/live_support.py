@@ -13,6 +13,7 @@ import os
 import shutil
 import signal
 import socket
+import stat
 import subprocess
 import sys
 import threading
@@ -132,6 +133,70 @@ def make_test_pki(d: Path) -> None:
         "-extfile", "server.ext",
         cwd=d,
     )  # fmt: skip
+
+
+@contextlib.contextmanager
+def mosquitto_running(directory: Path, port: int, timeout: float = 20.0) -> Iterator[Path]:
+    """Run ``mosquitto -c directory/mosquitto.conf`` until the block ends; yields its log.
+
+    Everything in ``directory`` is made readable for the unprivileged user mosquitto drops to
+    when started as root."""
+    for p in [directory, *directory.rglob("*")]:
+        p.chmod(p.stat().st_mode | stat.S_IRGRP | stat.S_IROTH | stat.S_IXOTH * p.is_dir())
+    log = directory / "mosquitto.log"
+    with log.open("wb") as out:
+        proc = subprocess.Popen(
+            [shutil.which("mosquitto") or "mosquitto", "-c", str(directory / "mosquitto.conf")],
+            cwd=directory,
+            stdout=out,
+            stderr=subprocess.STDOUT,
+        )
+    try:
+
+        def up() -> bool:
+            if proc.poll() is not None:
+                raise RuntimeError(f"mosquitto exited: {log.read_text(errors='replace')[-2000:]}")
+            return reachable("127.0.0.1", port, 0.5)
+
+        wait_for(up, timeout, 0.05, f"mosquitto to listen on {port}")
+        yield log
+    finally:
+        proc.terminate()
+        try:
+            proc.wait(timeout=10)
+        except subprocess.TimeoutExpired:
+            proc.kill()
+            proc.wait()
+
+
+def wait_daemon_ready(
+    proc: subprocess.Popen[bytes], http_port: int, log: Path, timeout: float = 60.0
+) -> float:
+    """Wait until the daemon's /readyz answers 200; fail at once if the process exits."""
+
+    def ready() -> bool:
+        if proc.poll() is not None:
+            raise AssertionError(f"daemon exited {proc.returncode}:\n{log.read_text()[-3000:]}")
+        return http_get(http_port, "/readyz")[0] == 200
+
+    return wait_for(ready, timeout, 0.1, "daemon ready")
+
+
+def ambient_reading(ts: float, unit: str = "KR-GT1", topic: str = "kestrel/gt1/TT-AMB") -> Any:
+    """A stored-reading record: ambient temperature 15 degC (288.15 K) at ``ts``."""
+    from daemon.types import Reading
+
+    return Reading(
+        unit=unit,
+        measurement="ambient_temperature",
+        value=288.15,
+        source_ts=ts,
+        received_ts=ts + 0.05,
+        quality="good",
+        topic=topic,
+        raw_value=15.0,
+        raw_uom="degC",
+    )
 
 
 def free_port() -> int:

@@ -29,6 +29,7 @@ import signal
 import sqlite3
 import subprocess
 import sys
+import time
 import tomllib
 import uuid
 from pathlib import Path
@@ -36,13 +37,14 @@ from pathlib import Path
 import pytest
 from live_support import (
     ROOT,
+    Publisher,
     free_port,
-    http_get,
     plant_toml,
     private_mosquitto,
     require_tools,
     run_daemon,
     snapshot_messages,
+    wait_daemon_ready,
     wait_for,
 )
 
@@ -404,21 +406,11 @@ def test_daemon_computes_under_memory_deny_write_execute(tmp_path: Path) -> None
         log = tmp_path / "daemon.log"
         proc = run_daemon(plant, log, "--stop-timeout", "20", launcher=DENY_WRITE_EXECUTE)
         try:
-
-            def ready() -> bool:
-                if proc.poll() is not None:
-                    raise AssertionError(f"daemon exited {proc.returncode}: {log.read_text()}")
-                return http_get(http_port, "/readyz")[0] == 200
-
-            wait_for(ready, 60, 0.1, "daemon ready")
-            from live_support import Publisher
-
+            wait_daemon_ready(proc, http_port, log)
             pub = Publisher(broker.port, f"bs-mdwe-pub-{uuid.uuid4().hex[:6]}")
             try:
 
                 def results() -> int:
-                    import time
-
                     for topic, data in snapshot_messages(prefix, "KR-GT1", time.time()):
                         pub.publish(topic, data)
                     pub.flush()

@@ -25,7 +25,6 @@ import re
 import shutil
 import signal
 import sqlite3
-import stat
 import subprocess
 import sys
 import tempfile
@@ -42,18 +41,18 @@ import pytest
 import sqlalchemy as sa
 from live_support import (
     ROOT,
+    ambient_reading,
     free_port,
-    http_get,
     make_test_pki,
-    reachable,
+    mosquitto_running,
     require_tools,
     run_daemon,
     run_tool,
+    wait_daemon_ready,
     wait_for,
 )
 
 from daemon.storage import ResultRow, Store
-from daemon.types import Reading
 
 pytestmark = pytest.mark.services
 
@@ -101,34 +100,10 @@ def acl_broker() -> Iterator[AclBroker]:
         conf = conf.replace("listener 8883\n", f"listener {port} 127.0.0.1\n")
         conf = conf.replace("/etc/mosquitto/", f"{d}/").replace("/var/lib/mosquitto/", f"{d}/")
         (d / "mosquitto.conf").write_text(conf + "log_dest stderr\n")
-        for p in [d, *d.rglob("*")]:
-            p.chmod(p.stat().st_mode | stat.S_IRGRP | stat.S_IROTH | stat.S_IXOTH * p.is_dir())
-        d.chmod(0o777)  # the persistence file
-        log = d / "mosquitto.log"
-        with log.open("wb") as out:
-            proc = subprocess.Popen(
-                [shutil.which("mosquitto") or "mosquitto", "-c", str(d / "mosquitto.conf")],
-                cwd=d,
-                stdout=out,
-                stderr=subprocess.STDOUT,
-            )
-        try:
-
-            def up() -> bool:
-                if proc.poll() is not None:
-                    raise AssertionError(f"mosquitto exited: {log.read_text(errors='replace')}")
-                return reachable("127.0.0.1", port)
-
-            wait_for(up, TIMEOUT_S, 0.05, "mosquitto with the example configuration")
+        with mosquitto_running(d, port, TIMEOUT_S):
+            d.chmod(0o777)  # the persistence file, written by the user mosquitto drops to
             print(f"broker: private mosquitto with deploy/mosquitto/*.example at 127.0.0.1:{port}")
             yield AclBroker(port, d / "certs" / "ca.crt", passwords)
-        finally:
-            proc.terminate()
-            try:
-                proc.wait(timeout=10)
-            except subprocess.TimeoutExpired:
-                proc.kill()
-                proc.wait()
     finally:
         shutil.rmtree(d, ignore_errors=True)
 
@@ -302,13 +277,7 @@ def test_daemon_with_the_example_plant_file_works_under_the_acl(
         assert dashboard.subscribe("brayscope/kestrel-ridge/status") == [GRANTED_QOS1]
         proc = run_daemon(plant, log, env_extra=env)
         try:
-
-            def ready() -> bool:
-                if proc.poll() is not None:
-                    raise AssertionError(f"daemon exited {proc.returncode}: {log.read_text()}")
-                return http_get(http_port, "/readyz")[0] == 200
-
-            wait_for(ready, 60, 0.1, "daemon ready")
+            wait_daemon_ready(proc, http_port, log)
             dashboard.wait_message("brayscope/kestrel-ridge/status", b"online")
             ts = time.time()
             body = json.dumps({"value": 14.75, "ts": ts}).encode()
@@ -407,20 +376,6 @@ def pg_site(_pg_session: str | None) -> Iterator[PgSite]:
         engine.dispose()
 
 
-def _reading(ts: float) -> Reading:
-    return Reading(
-        unit="KR-GT1",
-        measurement="ambient_temperature",
-        value=288.15,
-        source_ts=ts,
-        received_ts=ts + 0.05,
-        quality="good",
-        topic="kestrel/gt1/TT-AMB",
-        raw_value=15.0,
-        raw_uom="degC",
-    )
-
-
 def _denied(url: str, sql: str) -> bool:
     engine = sa.create_engine(url)
     try:
@@ -453,7 +408,7 @@ def test_postgres_owner_migrates_and_the_daemon_role_only_reads_and_writes_rows(
     with Store(daemon_url) as st:
         st.upgrade()  # at head already: migrates nothing, needs no DDL privilege
         st.ensure_unit("KR-GT1", "gas_turbine", "45 MW class")
-        assert st.write_readings([_reading(now - 86400.0 * 10), _reading(now)]) == 2
+        assert st.write_readings([ambient_reading(now - 86400.0 * 10), ambient_reading(now)]) == 2
         assert st.write_results([ResultRow(unit="KR-GT1", ts=now, values={"shaft_power": 4e7})])
         st.write_event("start", "deploy test")
         assert st.purge({"readings": now - 86400.0}) == {"readings": 1}
@@ -483,7 +438,7 @@ def test_postgres_dump_and_restore_round_trip(pg_site: PgSite, tmp_path: Path) -
     with Store(owner_url) as st:
         st.upgrade()
         st.ensure_unit("KR-GT1", "gas_turbine")
-        st.write_readings([_reading(now - i) for i in range(500)])
+        st.write_readings([ambient_reading(now - i) for i in range(500)])
         st.write_results([ResultRow(unit="KR-GT1", ts=now - 10 * i) for i in range(50)])
         before = {t: st.count(t) for t in ("units", "results", "readings", "events")}
         revision = st.current_revision()
@@ -508,7 +463,7 @@ def test_postgres_dump_and_restore_round_trip(pg_site: PgSite, tmp_path: Path) -
     with Store(pg_site.url(pg_site.daemon)) as st:
         assert {t: st.count(t) for t in before} == before
         assert st.current_revision() == revision
-        assert st.write_readings([_reading(now + 1)]) == 1  # grants came back
+        assert st.write_readings([ambient_reading(now + 1)]) == 1  # grants came back
     assert _denied(pg_site.url(pg_site.daemon), "CREATE TABLE intruder (x int)")
 
 
@@ -531,7 +486,7 @@ def test_sqlite_online_backup_while_writing_and_restore(tmp_path: Path) -> None:
     def writer() -> None:  # the daemon committing batches meanwhile
         i = 0
         while not stop.is_set():
-            store.write_readings([_reading(t0 + i * 10 + k) for k in range(10)])
+            store.write_readings([ambient_reading(t0 + i * 10 + k) for k in range(10)])
             i += 1
             written[0] = i * 10
 

@@ -23,8 +23,6 @@ import contextlib
 import gc
 import shutil
 import ssl
-import stat
-import subprocess
 import tempfile
 import time
 import uuid
@@ -35,7 +33,15 @@ from typing import Any
 
 import aiomqtt
 import pytest
-from live_support import free_port, make_test_pki, payload, plant_toml, run_tool, topic_of
+from live_support import (
+    free_port,
+    make_test_pki,
+    mosquitto_running,
+    payload,
+    plant_toml,
+    run_tool,
+    topic_of,
+)
 
 from daemon.config import load_plant
 from daemon.feeds.decode import Batch, Decoder
@@ -61,19 +67,6 @@ class TlsBroker:
     directory: Path
 
 
-def _wait_port(port: int, proc: subprocess.Popen[bytes], log: Path) -> None:
-    import socket
-
-    deadline = time.monotonic() + TIMEOUT_S
-    while time.monotonic() < deadline:
-        if proc.poll() is not None:
-            raise RuntimeError(f"mosquitto exited: {log.read_text(errors='replace')[-2000:]}")
-        with contextlib.suppress(OSError), socket.create_connection(("127.0.0.1", port), 0.5):
-            return
-        time.sleep(0.05)
-    raise RuntimeError(f"mosquitto did not listen on {port}")
-
-
 @pytest.fixture(scope="module")
 def tls_broker() -> Iterator[TlsBroker]:
     # a directory of our own, readable by the unprivileged user mosquitto may drop to
@@ -93,28 +86,8 @@ def tls_broker() -> Iterator[TlsBroker]:
             f"keyfile {d / 'server.key'}\n"
             "tls_version tlsv1.2\n"
         )
-        for p in [d, *d.iterdir()]:
-            p.chmod(
-                p.stat().st_mode | stat.S_IRGRP | stat.S_IROTH | (stat.S_IXOTH if p.is_dir() else 0)
-            )
-        log = d / "mosquitto.log"
-        with log.open("wb") as out:
-            proc = subprocess.Popen(
-                [shutil.which("mosquitto") or "mosquitto", "-c", str(d / "mosquitto.conf")],
-                cwd=d,
-                stdout=out,
-                stderr=subprocess.STDOUT,
-            )
-        try:
-            _wait_port(port, proc, log)
+        with mosquitto_running(d, port, TIMEOUT_S):
             yield TlsBroker(port, d / "ca.crt", d)
-        finally:
-            proc.terminate()
-            try:
-                proc.wait(timeout=10)
-            except subprocess.TimeoutExpired:
-                proc.kill()
-                proc.wait()
     finally:
         shutil.rmtree(d, ignore_errors=True)
 

@@ -14,12 +14,12 @@ import time
 from pathlib import Path
 
 import pytest
-from live_support import free_port, plant_toml
+from live_support import ambient_reading, free_port, plant_toml
 
 from daemon import cli
 from daemon.config import PlantConfigError, load_plant
 from daemon.storage import ResultRow, Store
-from daemon.types import Quarantined, Reading
+from daemon.types import Quarantined
 
 DAY = 86400.0
 
@@ -39,25 +39,11 @@ def _plant(tmp_path: Path, database_lines: str, url: str = "sqlite:///./db.sqlit
     return path
 
 
-def _reading(ts: float) -> Reading:
-    return Reading(
-        unit="KR-GT1",
-        measurement="ambient_temperature",
-        value=288.15,
-        source_ts=ts,
-        received_ts=ts + 0.05,
-        quality="good",
-        topic="kestrel-ret/kr-gt1/ambient_temperature",
-        raw_value=15.0,
-        raw_uom="degC",
-    )
-
-
 def _fill(store: Store, now: float) -> None:
     """Rows 10 and 100 days old in every table, and one of each now."""
     for age in (100.0, 10.0, 0.0):
         ts = now - age * DAY
-        store.write_readings([_reading(ts)])
+        store.write_readings([ambient_reading(ts, topic="kestrel-ret/kr-gt1/ambient_temperature")])
         store.write_results([ResultRow(unit="KR-GT1", ts=ts, values={"air_mass_flow": 120.0})])
         store.write_quarantine([Quarantined(ts, "x/y", b"{", "malformed_json", "", None)])
         store.write_event("start", "test", ts=ts)

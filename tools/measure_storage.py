@@ -110,21 +110,27 @@ def _results(n: int, units: list[str], tick_s: float, rng: random.Random) -> Ite
         )
 
 
-def _fill(store: Store, n_readings: int, n_results: int, measure: Any) -> list[tuple[str, int]]:
-    plant = load_plant(EXAMPLE)
-    store.upgrade()
-    store.upsert_units(plant.units)
-    rng = random.Random(20260601)
-    before = measure("readings")
-    for batch in _readings(n_readings, rng):
-        store.write_readings(batch)
-    grown = [("readings", measure("readings") - before)]
-    before = measure("results")
-    rows = list(_results(n_results, list(plant.units), plant.daemon.tick_s, rng))
-    for i in range(0, len(rows), 100):
-        store.write_results(rows[i : i + 100])
-    grown.append(("results", measure("results") - before))
-    return grown
+def _measure(
+    backend: str, store: Store, n_readings: int, n_results: int, size: Any
+) -> list[Figure]:
+    """Fill an empty ``store`` and return the growth of ``size(table)`` per table."""
+    try:
+        plant = load_plant(EXAMPLE)
+        store.upgrade()
+        store.upsert_units(plant.units)
+        rng = random.Random(20260601)
+        before = size("readings")
+        for batch in _readings(n_readings, rng):
+            store.write_readings(batch)
+        figures = [Figure(backend, "readings", n_readings, size("readings") - before)]
+        before = size("results")
+        rows = list(_results(n_results, list(plant.units), plant.daemon.tick_s, rng))
+        for i in range(0, len(rows), 100):
+            store.write_results(rows[i : i + 100])
+        figures.append(Figure(backend, "results", n_results, size("results") - before))
+        return figures
+    finally:
+        store.close()
 
 
 def measure_sqlite(n_readings: int, n_results: int) -> list[Figure]:
@@ -133,17 +139,12 @@ def measure_sqlite(n_readings: int, n_results: int) -> list[Figure]:
         path = Path(d) / "size.sqlite"
         store = Store(f"sqlite:///{path}")
 
-        def measure(_table: str) -> int:
+        def size(_table: str) -> int:
             with store.engine.connect() as conn:
                 conn.exec_driver_sql("PRAGMA wal_checkpoint(TRUNCATE)")
             return path.stat().st_size
 
-        try:
-            grown = _fill(store, n_readings, n_results, measure)
-        finally:
-            store.close()
-    counts = {"readings": n_readings, "results": n_results}
-    return [Figure("sqlite", t, counts[t], b) for t, b in grown]
+        return _measure("sqlite", store, n_readings, n_results, size)
 
 
 @contextmanager
@@ -165,7 +166,7 @@ def measure_postgres(url: str, n_readings: int, n_results: int) -> list[Figure]:
     with _pg_schema(url) as name:
         store = Store(url, schema=name)
 
-        def measure(table: str) -> int:
+        def size(table: str) -> int:
             with store.engine.connect() as conn:
                 return int(
                     conn.execute(
@@ -174,12 +175,7 @@ def measure_postgres(url: str, n_readings: int, n_results: int) -> list[Figure]:
                     ).scalar_one()
                 )
 
-        try:
-            grown = _fill(store, n_readings, n_results, measure)
-        finally:
-            store.close()
-    counts = {"readings": n_readings, "results": n_results}
-    return [Figure("postgresql", t, counts[t], b) for t, b in grown]
+        return _measure("postgresql", store, n_readings, n_results, size)
 
 
 def main(argv: list[str] | None = None) -> int:
