@@ -360,7 +360,7 @@ async def test_security_policies(tmp_path: Path, certs: dict[str, Path]) -> None
         async with OpcUaSession(
             endpoint(srv.url, security=secure(certs)), tags, environ=wrong
         ) as s:
-            with pytest.raises(OpcUaSecurityError, match="BadUserAccessDenied|refused"):
+            with pytest.raises(OpcUaSecurityError, match="BadUserAccessDenied"):
                 await s.wait_connected(10)
         # a server certificate outside the trust list: we refuse it
         untrusted = endpoint(srv.url, security=secure(certs, trust="untrusted"))
@@ -368,12 +368,12 @@ async def test_security_policies(tmp_path: Path, certs: dict[str, Path]) -> None
             with pytest.raises(OpcUaSecurityError, match="not in the trust list"):
                 await s.wait_connected(10)
     # encryption asked for, but the server offers only None: we refuse before any credentials
-    async with KestrelServer() as plain:
-        async with OpcUaSession(
-            endpoint(plain.url, security=secure(certs)), tags, environ=env
-        ) as s:
-            with pytest.raises(OpcUaSecurityError, match="offers no Basic256Sha256/SignAndEncrypt"):
-                await s.wait_connected(10)
+    async with (
+        KestrelServer() as plain,
+        OpcUaSession(endpoint(plain.url, security=secure(certs)), tags, environ=env) as s,
+    ):
+        with pytest.raises(OpcUaSecurityError, match="offers no Basic256Sha256/SignAndEncrypt"):
+            await s.wait_connected(10)
 
 
 def test_password_sources(tmp_path: Path) -> None:
