@@ -160,10 +160,14 @@ class KestrelServer:
         else:
             srv.set_security_policy([ua.SecurityPolicyType.NoSecurity])
         self.ns = await srv.register_namespace(NS_URI)
-        obj = await srv.nodes.objects.add_object(ua.NodeId("KR-GT1", self.ns), "KR-GT1")
+        obj = await srv.nodes.objects.add_object(
+            ua.NodeId("KR-GT1", self.ns), ua.QualifiedName("KR-GT1", self.ns)
+        )
         for name, (vtype, value, hist) in VARIABLES.items():
             var = await obj.add_variable(
-                ua.NodeId(f"KR-GT1.{name}", self.ns), name, ua.Variant(value, vtype)
+                ua.NodeId(f"KR-GT1.{name}", self.ns),
+                ua.QualifiedName(name, self.ns),
+                ua.Variant(value, vtype),
             )
             if hist:
                 await srv.historize_node_data_change(var, period=None, count=10000)

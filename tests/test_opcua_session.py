@@ -16,13 +16,14 @@ Sources of the check values:
 from __future__ import annotations
 
 import asyncio
+import sys
 import time
 import uuid
 from pathlib import Path
 
 import pytest
 from asyncua import ua
-from opcua_support import NS_URI, CutProxy, KestrelServer, make_cert
+from opcua_support import NS_URI, CutProxy, KestrelServer, free_port, make_cert
 from typed_feed_support import kestrel_routes
 
 from daemon.feeds.opcua import (
@@ -383,3 +384,48 @@ def test_password_sources(tmp_path: Path) -> None:
     assert OpcUaSecurity(username="u", password_env="X").password({"X": "env"}) == "env"
     with pytest.raises(ValueError, match="not set"):
         OpcUaSecurity(username="u", password_env="X").password({})
+
+
+# -- browsing -------------------------------------------------------------------------------------
+
+
+async def test_browse_lists_the_kestrel_nodes(tmp_path: Path) -> None:
+    from daemon.feeds.opcua.browse import browse
+
+    async with KestrelServer() as srv:
+        rows = await browse(endpoint(srv.url), start=f"nsu={NS_URI};s=KR-GT1", depth=1)
+        by_name = {r.browse_name.split(":", 1)[1]: r for r in rows}
+        assert set(by_name) == {"TT-CD", "PT-CD", "JT-GEN", "FQ-GAS"}
+        tt = by_name["TT-CD"]
+        assert (tt.node_id, tt.node_class, tt.data_type) == (
+            f"nsu={NS_URI};s=KR-GT1.TT-CD",
+            "Variable",
+            "Double",
+        )
+        assert (tt.value, tt.status) == ("398.85", "Good")
+        # the command a user runs, in its own process, against the same server
+        proc = await asyncio.create_subprocess_exec(
+            sys.executable, "-m", "daemon.cli", "opcua", "browse", "--endpoint", srv.url,
+            "--depth", "2", "--tsv",
+            stdout=asyncio.subprocess.PIPE, stderr=asyncio.subprocess.PIPE,
+        )  # fmt: skip
+        out, errs = await asyncio.wait_for(proc.communicate(), 60)
+    assert proc.returncode == 0, errs.decode()
+    lines = out.decode().splitlines()
+    assert lines[0].split("\t") == [
+        "depth", "node_id", "browse_name", "node_class", "data_type", "value", "status",
+    ]  # fmt: skip
+    fq = [x for x in lines if "FQ-GAS" in x]
+    assert fq == [f"1\tnsu={NS_URI};s=KR-GT1.FQ-GAS\t2:FQ-GAS\tVariable\tUInt32\t9720\tGood"]
+
+
+def test_browse_command_errors(capsys: pytest.CaptureFixture[str]) -> None:
+    from daemon.cli import main
+
+    assert main(["opcua", "browse", "--endpoint", "http://x", "--depth", "1"]) == 2
+    assert "opc.tcp" in capsys.readouterr().err
+    assert main(["opcua", "browse", "--endpoint", "opc.tcp://x:1/", "--username", "u"]) == 2
+    assert "never inline" in capsys.readouterr().err
+    port = free_port()  # nothing listens there
+    assert main(["opcua", "browse", "--endpoint", f"opc.tcp://127.0.0.1:{port}/"]) == 1
+    assert "cannot browse" in capsys.readouterr().err

@@ -100,7 +100,7 @@ class NodeIdSpec:
             )
         return idx
 
-    def to_ua(self, namespace_array: Sequence[str]) -> object:
+    def to_ua(self, namespace_array: Sequence[str]) -> Any:
         """An ``asyncua.ua.NodeId`` for a server with this namespace array."""
         from asyncua import ua
 

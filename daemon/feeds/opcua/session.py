@@ -39,6 +39,7 @@ import contextlib
 import logging
 import os
 import random
+import re
 import time
 from collections.abc import AsyncIterator, Callable, Mapping, Sequence
 from dataclasses import dataclass, field
@@ -46,7 +47,7 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, model_validator
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 from daemon.feeds.decode import Batch, DecoderLimits, TagRoute
 from daemon.feeds.mqtt import backoff_delay
@@ -73,6 +74,8 @@ __all__ = [
 ]
 
 log = logging.getLogger("brayscope.feeds.opcua")
+
+_URL = re.compile(r"^opc\.tcp://[^/\s]+(/\S*)?$")
 
 #: UserAccessLevel bit of HistoryRead (OPC 10000-3, 8.57 AccessLevelType: bit 2).
 ACCESS_HISTORY_READ = 0x04
@@ -220,7 +223,7 @@ class OpcUaEndpoint(BaseModel):
 
     model_config = ConfigDict(extra="forbid")
 
-    url: str = Field(pattern=r"^opc\.tcp://[^/\s]+(/\S*)?$")
+    url: str
     security: OpcUaSecurity = Field(default_factory=OpcUaSecurity)
     publishing_interval_ms: float = Field(default=500.0, gt=0)
     request_timeout_s: float = Field(default=4.0, gt=0)
@@ -228,6 +231,13 @@ class OpcUaEndpoint(BaseModel):
     history_on_reconnect: bool = True
     history_max_gap_s: float = Field(default=3600.0, gt=0)
     history_max_values: int = Field(default=10000, ge=1)
+
+    @field_validator("url")
+    @classmethod
+    def _opc_tcp(cls, v: str) -> str:
+        if not _URL.match(v):
+            raise ValueError(f"endpoint {v[:120]!r} must look like opc.tcp://host:port/path")
+        return v
 
 
 @dataclass(frozen=True, slots=True)
@@ -627,7 +637,7 @@ class OpcUaSession:
             lost.set()
 
         client.connection_lost_callback = on_lost
-        await self._secure(client)
+        await self.secure_client(client)
         sec = ep.security
         if sec.username:
             client.set_user(sec.username)
@@ -675,8 +685,15 @@ class OpcUaSession:
             with contextlib.suppress(Exception):
                 await asyncio.wait_for(client.disconnect(), 2.0)
 
-    async def _secure(self, client: Any) -> None:
-        """Apply the security settings, after checking the server's endpoint ourselves."""
+    async def secure_client(self, client: Any) -> None:
+        """Apply the security settings to an ``asyncua.Client`` (before ``connect``), after
+        checking the server's endpoint ourselves: the policy and mode asked for must be
+        offered, and the server certificate must be the pinned one or in the trust list.
+
+        Raises
+        ------
+        OpcUaSecurityError, OpcUaConfigError
+        """
         from asyncua import ua
         from asyncua.crypto import security_policies, uacrypto
         from asyncua.crypto.truststore import TrustStore
