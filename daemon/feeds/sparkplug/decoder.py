@@ -386,14 +386,7 @@ class SparkplugDecoder:
         elif mtype == "NDEATH":
             self._ndeath(msg, t, st, p)
         elif not st.online:
-            what = "device " + str(t.device) if t.device is not None else "edge node"
-            self._whole(
-                msg,
-                "no_birth",
-                f"{mtype} from {what} of {t.group}/{t.edge_node} before its NBIRTH "
-                f"({len(p.metrics)} metric(s)); rebirth requested",
-            )
-            self._rebirth(msg.events, t.group, t.edge_node, st, msg.received_ts, "no NBIRTH")
+            self._no_birth(msg, t, st, p, "NBIRTH")
         else:
             self._sequence(msg, t, st, p)
             if mtype == "DBIRTH":
@@ -406,15 +399,21 @@ class SparkplugDecoder:
                         self._stale(t.group, t.edge_node, dev, "device_death", msg.received_ts)
                     )
             elif t.device is not None and t.device not in st.devices_online:
-                self._whole(
-                    msg,
-                    "no_birth",
-                    f"DDATA from device {t.device} of {t.group}/{t.edge_node} before its DBIRTH "
-                    f"({len(p.metrics)} metric(s)); rebirth requested",
-                )
-                self._rebirth(msg.events, t.group, t.edge_node, st, msg.received_ts, "no DBIRTH")
+                self._no_birth(msg, t, st, p, "DBIRTH")
             else:
                 self._data(msg, t, st, p)
+
+    def _no_birth(
+        self, msg: _Msg, t: SparkplugTopic, st: _NodeState, p: pb.Payload, birth: str
+    ) -> None:
+        what = f"device {t.device}" if t.device is not None else "edge node"
+        self._whole(
+            msg,
+            "no_birth",
+            f"{t.message_type} from {what} of {t.group}/{t.edge_node} before its {birth} "
+            f"({len(p.metrics)} metric(s)); rebirth requested",
+        )
+        self._rebirth(msg.events, t.group, t.edge_node, st, msg.received_ts, f"no {birth}")
 
     # -- message types -------------------------------------------------------------------
 
