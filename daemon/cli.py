@@ -24,6 +24,7 @@ COMMANDS: dict[str, str] = {
     "bench-live": "daemon.bench_live",
     "run": "daemon.run_cmd",
     "trend": "daemon.trend_cmd",
+    "opcua": "daemon.opcua_cmd",
 }
 
 CAUTION = (

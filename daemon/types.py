@@ -42,6 +42,12 @@ QUARANTINE_REASONS: Final[frozenset[str]] = frozenset(
         "bad_quality",
         "duplicate",
         "conversion_error",
+        # binary feeds (Sparkplug B, OPC UA)
+        "malformed_protobuf",
+        "no_birth",
+        "unknown_alias",
+        "unsupported_datatype",
+        "null_value",
     }
 )
 
