@@ -542,8 +542,8 @@ def excess_air_ratio_from_oxygen(
     -----
     lambda = (c + x b) / (c - x a), the solution of eq. (9) for lambda; x = 0 gives 1 (a rich
     mixture also reads 0 % O2: lambda <= 1 cannot be told apart without CO).  The often
-    quoted 20.9 / (20.9 - O2 %) ignores the contraction of the products and is 5-10 % high
-    for natural gas at lean-burn O2 levels.
+    quoted 20.9 / (20.9 - O2 %) ignores the contraction of the products and reads 4-8 % high
+    for natural gas at 8-15 % dry O2.
 
     References
     ----------
@@ -724,7 +724,7 @@ def turbocharger_compressor(
     """
     st = compressor(fluid, inlet_temperature, inlet_pressure, outlet_temperature,
                     outlet_pressure)  # fmt: skip
-    status = st.status & ~np.uint32(Reason.EFFICIENCY_IMPLAUSIBLE)
+    status = np.array(st.status & ~np.uint32(Reason.EFFICIENCY_IMPLAUSIBLE), dtype=np.uint32)
     eta = st.isentropic_efficiency
     lo, hi = TURBOCHARGER_EFFICIENCY_BAND
     with np.errstate(invalid="ignore"):
