@@ -144,7 +144,10 @@ class Iso3046Exponents:
 ISO3046_EXPONENTS: Mapping[str, Iso3046Exponents] = MappingProxyType(
     {
         "ci_naturally_aspirated": Iso3046Exponents(
-            1.0, 1.0, 0.75, 0.0,
+            1.0,
+            1.0,
+            0.75,
+            0.0,
             "compression ignition, naturally aspirated or mechanically pressure-charged, "
             "power limited by excess air",
         ),
@@ -155,7 +158,7 @@ ISO3046_EXPONENTS: Mapping[str, Iso3046Exponents] = MappingProxyType(
             0.0, 0.7, 1.2, 1.0, "compression ignition, turbocharged with charge-air cooling"
         ),
     }
-)  # fmt: skip
+)
 
 
 def indicated_power_ratio(
@@ -225,10 +228,17 @@ def indicated_power_ratio(
     miss = np.isnan(pb) | np.isnan(Tb) | np.isnan(rb) | (np.isnan(tb) & uses_tc)
     with np.errstate(invalid="ignore"):
         nonphys = ~miss & ((pb <= 0) | (Tb <= 0) | (rb < 0) | (rb > 1) | ((tb <= 0) & uses_tc))
-        outside = ~miss & ~nonphys & (
-            (pb < _P_RANGE[0]) | (pb > _P_RANGE[1]) | (Tb < _T_RANGE[0]) | (Tb > _T_RANGE[1])
-            | (uses_tc & ((tb < _TC_RANGE[0]) | (tb > _TC_RANGE[1])))
-        )  # fmt: skip
+        outside = (
+            ~miss
+            & ~nonphys
+            & (
+                (pb < _P_RANGE[0])
+                | (pb > _P_RANGE[1])
+                | (Tb < _T_RANGE[0])
+                | (Tb > _T_RANGE[1])
+                | (uses_tc & ((tb < _TC_RANGE[0]) | (tb > _TC_RANGE[1])))
+            )
+        )
     _flag(status, miss, Reason.INPUT_MISSING)
     _flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
     _flag(status, outside, Reason.CORRECTION_UNAVAILABLE)
@@ -396,9 +406,13 @@ def iso3046_correction(
     (499.7, 220.0)
     """
     k, status = indicated_power_ratio(
-        ambient_pressure, ambient_temperature, ambient_relative_humidity,
-        charge_air_coolant_temperature, exponents, reference=reference,
-    )  # fmt: skip
+        ambient_pressure,
+        ambient_temperature,
+        ambient_relative_humidity,
+        charge_air_coolant_temperature,
+        exponents,
+        reference=reference,
+    )
     alpha, st = power_adjustment_factor(np.where(np.isnan(k), 1.0, k), mechanical_efficiency)
     status = np.asarray(status | st, dtype=np.uint32)
     beta = fuel_consumption_adjustment_factor(k, alpha)
@@ -496,9 +510,12 @@ def spark_ignition_correction_factor(
     with np.errstate(invalid="ignore", divide="ignore"):
         alpha = (99.0e3 / pd) ** 1.2 * (Ts / 298.0) ** 0.6
         outside = ok & (
-            (alpha < _SI_ALPHA_RANGE[0]) | (alpha > _SI_ALPHA_RANGE[1])
-            | (Ts < _SI_T_RANGE[0]) | (Ts > _SI_T_RANGE[1])
-            | (pd < _SI_PD_RANGE[0]) | (pd > _SI_PD_RANGE[1])
-        )  # fmt: skip
+            (alpha < _SI_ALPHA_RANGE[0])
+            | (alpha > _SI_ALPHA_RANGE[1])
+            | (Ts < _SI_T_RANGE[0])
+            | (Ts > _SI_T_RANGE[1])
+            | (pd < _SI_PD_RANGE[0])
+            | (pd > _SI_PD_RANGE[1])
+        )
     _flag(status, outside, Reason.CORRECTION_UNAVAILABLE)
     return np.where(status != 0, np.nan, alpha), status

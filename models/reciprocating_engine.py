@@ -145,7 +145,7 @@ def simulate_engine(
     excess_air_ratio: ArrayLike,
     volumetric_efficiency: ArrayLike,
     charge_air_temperature: ArrayLike,
-    turbocharger_compressor_efficiency: ArrayLike,
+    turbocharger_compressor_isentropic_efficiency: ArrayLike,
     premixed: bool = False,
     generator_efficiency: ArrayLike = 0.975,
     mechanical_loss: ArrayLike = 0.0,
@@ -180,7 +180,7 @@ def simulate_engine(
         eta_v against the receiver density [-].
     charge_air_temperature : array_like
         Receiver temperature after the intercooler [K] (a controlled value on most sets).
-    turbocharger_compressor_efficiency : array_like
+    turbocharger_compressor_isentropic_efficiency : array_like
         Isentropic efficiency of the turbocharger compressor [-].
     premixed : bool
         Gas mixed into the air before the compressor (lean-burn gas engines).
@@ -220,13 +220,22 @@ def simulate_engine(
     """
     T0, p0, rh, Pg, w, eta_b, lam, eta_v, Tr, eta_c = (
         np.asarray(v, dtype=np.float64)
-        for v in (ambient_temperature, ambient_pressure, ambient_relative_humidity,
-                  generator_power, engine_speed, brake_thermal_efficiency, excess_air_ratio,
-                  volumetric_efficiency, charge_air_temperature,
-                  turbocharger_compressor_efficiency)
-    )  # fmt: skip
-    shape = np.broadcast_shapes(*(a.shape for a in (T0, p0, rh, Pg, w, eta_b, lam, eta_v, Tr,
-                                                     eta_c)), fuel.shape)  # fmt: skip
+        for v in (
+            ambient_temperature,
+            ambient_pressure,
+            ambient_relative_humidity,
+            generator_power,
+            engine_speed,
+            brake_thermal_efficiency,
+            excess_air_ratio,
+            volumetric_efficiency,
+            charge_air_temperature,
+            turbocharger_compressor_isentropic_efficiency,
+        )
+    )
+    shape = np.broadcast_shapes(
+        *(a.shape for a in (T0, p0, rh, Pg, w, eta_b, lam, eta_v, Tr, eta_c)), fuel.shape
+    )
     T0, p0, rh, Pg, w, eta_b, lam, eta_v, Tr, eta_c = (
         _arr(a, shape) for a in (T0, p0, rh, Pg, w, eta_b, lam, eta_v, Tr, eta_c)
     )
@@ -238,8 +247,7 @@ def simulate_engine(
     with np.errstate(invalid="ignore"):
         _flag(status, ~((eta_b > 0) & (eta_b < 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
         _flag(status, ~((eta_c > 0) & (eta_c <= 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
-        _flag(status, ~(lam >= 1) | ~(eta_v > 0) | ~(w > 0) | ~(Tr > 0),
-              Reason.INPUT_NONPHYSICAL)  # fmt: skip
+        _flag(status, ~(lam >= 1) | ~(eta_v > 0) | ~(w > 0) | ~(Tr > 0), Reason.INPUT_NONPHYSICAL)
     m_f = Pb / (eta_b * lhv)
     eta_comb = np.asarray(combustion_efficiency, dtype=np.float64)
     m_a = lam * _stoich_air(air, fuel) * m_f
@@ -413,8 +421,9 @@ def reconstruct_engine(
         raise ModelInputError("correction", correction, "'iso3046', 'spark_ignition', 'none'")
     if correction == "iso3046" and iso3046_exponents is None:
         raise ModelInputError("iso3046_exponents", None, "Iso3046Exponents for ISO 3046-1")
-    shape = np.broadcast_shapes(*(np.shape(measurements[k]) for k in MEASUREMENTS_REQUIRED),
-                                fuel.shape)  # fmt: skip
+    shape = np.broadcast_shapes(
+        *(np.shape(measurements[k]) for k in MEASUREMENTS_REQUIRED), fuel.shape
+    )
     T0, p0, rh, w, Pg, m_f = (_arr(measurements[k], shape) for k in MEASUREMENTS_REQUIRED)
     opt = {k: _opt(measurements, k, shape) for k in MEASUREMENTS_OPTIONAL}
     lhv = np.asarray(fuel.lhv, dtype=np.float64)
@@ -429,23 +438,46 @@ def reconstruct_engine(
     air, st_air = _air(T0, p0, rh)
     status |= st_air
     # -- brake figures ------------------------------------------------------------------
-    b = rc.brake_performance(geometry, Pg, m_f, w, lhv, generator_efficiency=generator_efficiency,
-                             mechanical_loss=mechanical_loss)  # fmt: skip
-    for name in ("brake_power", "brake_torque", "brake_thermal_efficiency", "brake_heat_rate",
-                 "brake_specific_fuel_consumption", "brake_mean_effective_pressure",
-                 "mean_piston_speed"):  # fmt: skip
+    b = rc.brake_performance(
+        geometry,
+        Pg,
+        m_f,
+        w,
+        lhv,
+        generator_efficiency=generator_efficiency,
+        mechanical_loss=mechanical_loss,
+    )
+    for name in (
+        "brake_power",
+        "brake_torque",
+        "brake_thermal_efficiency",
+        "brake_heat_rate",
+        "brake_specific_fuel_consumption",
+        "brake_mean_effective_pressure",
+        "mean_piston_speed",
+    ):
         keep(name, getattr(b, name), b.status)
     el = rc.chp_efficiency(Pg, m_f, lhv)
     keep("thermal_efficiency", el.thermal_efficiency, el.status)
     keep("heat_input", np.where(np.isnan(el.thermal_efficiency), np.nan, m_f * lhv), el.status)
     chp = rc.chp_efficiency(
-        Pg, m_f, lhv, jacket_water_heat=opt["jacket_water_heat"],
-        lube_oil_heat=opt["lube_oil_heat"], charge_air_cooler_heat=opt["charge_air_cooler_heat"],
+        Pg,
+        m_f,
+        lhv,
+        jacket_water_heat=opt["jacket_water_heat"],
+        lube_oil_heat=opt["lube_oil_heat"],
+        charge_air_cooler_heat=opt["charge_air_cooler_heat"],
         exhaust_heat_recovered=opt["exhaust_heat_recovered"],
-    )  # fmt: skip
-    any_heat = any(opt[k] is not None for k in ("jacket_water_heat", "lube_oil_heat",
-                                                 "charge_air_cooler_heat",
-                                                 "exhaust_heat_recovered"))  # fmt: skip
+    )
+    any_heat = any(
+        opt[k] is not None
+        for k in (
+            "jacket_water_heat",
+            "lube_oil_heat",
+            "charge_air_cooler_heat",
+            "exhaust_heat_recovered",
+        )
+    )
     nan = np.full(shape, np.nan)
     keep("heat_recovery_efficiency", chp.heat_recovery_efficiency if any_heat else nan, chp.status)
     keep("chp_total_efficiency", chp.chp_total_efficiency if any_heat else nan, chp.status)
@@ -453,22 +485,28 @@ def reconstruct_engine(
     a_st = _stoich_air(air, fuel)
     lam_o2 = lam_af = nan
     if opt["exhaust_oxygen"] is not None:
-        lam_o2, st = rc.excess_air_ratio_from_oxygen(opt["exhaust_oxygen"], fuel, air,
-                                                     oxygen_basis)  # fmt: skip
+        lam_o2, st = rc.excess_air_ratio_from_oxygen(opt["exhaust_oxygen"], fuel, air, oxygen_basis)
         status |= st
     if opt["air_mass_flow"] is not None:
         lam_af, st = rc.excess_air_ratio_from_air_flow(opt["air_mass_flow"], m_f, fuel, air)
         status |= st
     measured = opt["air_mass_flow"]
     m_a = measured if measured is not None else lam_o2 * a_st * m_f
-    source = np.where(~np.isnan(measured if measured is not None else nan), "measured",
-                      np.where(~np.isnan(m_a), "oxygen", "none"))  # fmt: skip
+    source = np.where(
+        ~np.isnan(measured if measured is not None else nan),
+        "measured",
+        np.where(~np.isnan(m_a), "oxygen", "none"),
+    )
     with np.errstate(invalid="ignore"):
         m_a = np.where(m_a > 0, m_a, np.nan)
     lam = np.where(np.isnan(lam_o2), lam_af, lam_o2)
-    v.update(excess_air_ratio=_arr(lam, shape), excess_air_ratio_from_oxygen=_arr(lam_o2, shape),
-             excess_air_ratio_from_air_flow=_arr(lam_af, shape), air_mass_flow=_arr(m_a, shape),
-             air_fuel_ratio=_arr(m_a / m_f, shape))  # fmt: skip
+    v.update(
+        excess_air_ratio=_arr(lam, shape),
+        excess_air_ratio_from_oxygen=_arr(lam_o2, shape),
+        excess_air_ratio_from_air_flow=_arr(lam_af, shape),
+        air_mass_flow=_arr(m_a, shape),
+        air_fuel_ratio=_arr(m_a / m_f, shape),
+    )
     m_ch = m_a + m_f if premixed else m_a
     charge = _charge(air, fuel, m_a, m_f, premixed)
     # -- receiver and turbocharger ---------------------------------------------------------
@@ -479,8 +517,10 @@ def reconstruct_engine(
         eta_v, st = rc.volumetric_efficiency(geometry, m_ch, w, Tr, pr, fluid=charge)
         v["volumetric_efficiency"] = eta_v
         status |= st & ~np.uint32(Reason.INPUT_MISSING)  # a missing air flow is not an error
-    T_out, p_out = (opt["turbocharger_compressor_outlet_temperature"],
-                    opt["turbocharger_compressor_outlet_pressure"])  # fmt: skip
+    T_out, p_out = (
+        opt["turbocharger_compressor_outlet_temperature"],
+        opt["turbocharger_compressor_outlet_pressure"],
+    )
     p_in = opt["turbocharger_compressor_inlet_pressure"]
     p_in = p0 if p_in is None else p_in
     if p_out is not None:
@@ -497,25 +537,36 @@ def reconstruct_engine(
         ppk = opt["peak_cylinder_pressure"] if cycle == "diesel" else None
         kind: Literal["otto", "diesel", "dual"] = cycle if ppk is None else "dual"
         std, var = (
-            rc.cycle_from_fuel(kind, r, Tr, pr, fuel_mass_flow=m_f, charge_mass_flow=m_ch,
-                               lower_heating_value=lhv, peak_pressure=ppk, fluid=fluid,
-                               combustion_efficiency=combustion_efficiency)
+            rc.cycle_from_fuel(
+                kind,
+                r,
+                Tr,
+                pr,
+                fuel_mass_flow=m_f,
+                charge_mass_flow=m_ch,
+                lower_heating_value=lhv,
+                peak_cylinder_pressure=ppk,
+                fluid=fluid,
+                combustion_efficiency=combustion_efficiency,
+            )
             for fluid in (None, charge)
-        )  # fmt: skip
+        )
         err = (std.status | var.status) & ~np.uint32(Reason.INPUT_MISSING)
         status |= err
-        v["cycle_heat_input"] = var.heat_input
+        v["cycle_heat_input"] = var.cycle_heat_input
         if cycle == "diesel":
             v["cutoff_ratio"] = std.cutoff_ratio
             v["ideal_diesel_efficiency"] = std.efficiency if ppk is None else nan
             if ppk is not None:
                 v["ideal_dual_efficiency"] = std.efficiency
-                v["peak_pressure_ratio"] = std.pressure_ratio
+                v["peak_pressure_ratio"] = std.peak_pressure_ratio
             eta_as = std.efficiency
         v["ideal_cycle_efficiency"] = var.efficiency
         v["ideal_cycle_mean_effective_pressure"] = var.mean_effective_pressure
-        for name, ideal in (("relative_efficiency", var.efficiency),
-                            ("relative_efficiency_air_standard", eta_as)):  # fmt: skip
+        for name, ideal in (
+            ("relative_efficiency", var.efficiency),
+            ("relative_efficiency_air_standard", eta_as),
+        ):
             rel, st = rc.relative_efficiency(v["brake_thermal_efficiency"], ideal)
             v[name] = rel
             status |= st & ~np.uint32(Reason.INPUT_MISSING)
@@ -534,25 +585,40 @@ def reconstruct_engine(
             Tf = opt["fuel_temperature"]
             h_f = fuel.sensible_enthalpy(298.15 if Tf is None else Tf)
             eta_comb = np.asarray(combustion_efficiency, dtype=np.float64)
-            rest = (m_a * air.h(T0) + m_f * (h_f + eta_comb * lhv) - v["brake_power"]
-                    - opt["jacket_water_heat"] - opt["lube_oil_heat"] - q_cac
-                    - (m_a + m_f) * g.h(T_exh))  # fmt: skip
+            rest = (
+                m_a * air.h(T0)
+                + m_f * (h_f + eta_comb * lhv)
+                - v["brake_power"]
+                - opt["jacket_water_heat"]
+                - opt["lube_oil_heat"]
+                - q_cac
+                - (m_a + m_f) * g.h(T_exh)
+            )
             v["unaccounted_heat_fraction"] = _arr(rest / (m_f * lhv), shape)
     # -- correction to reference conditions -------------------------------------------------
     if correction == "iso3046":
         assert iso3046_exponents is not None
         tcx = opt["charge_air_coolant_temperature"]
         c = iso3046_correction(
-            v["brake_power"], v["brake_specific_fuel_consumption"], p0, T0, rh,
-            charge_air_coolant_temperature=(STANDARD_REFERENCE.charge_air_coolant_temperature
-                                            if tcx is None else tcx),
-            exponents=iso3046_exponents, mechanical_efficiency=mechanical_efficiency,
+            v["brake_power"],
+            v["brake_specific_fuel_consumption"],
+            p0,
+            T0,
+            rh,
+            charge_air_coolant_temperature=(
+                STANDARD_REFERENCE.charge_air_coolant_temperature if tcx is None else tcx
+            ),
+            exponents=iso3046_exponents,
+            mechanical_efficiency=mechanical_efficiency,
             brake_heat_rate=v["brake_heat_rate"],
-        )  # fmt: skip
-        for name in ("indicated_power_ratio", "power_adjustment_factor",
-                     "fuel_consumption_adjustment_factor",
-                     "corrected_brake_specific_fuel_consumption",
-                     "corrected_brake_heat_rate"):  # fmt: skip
+        )
+        for name in (
+            "indicated_power_ratio",
+            "power_adjustment_factor",
+            "fuel_consumption_adjustment_factor",
+            "corrected_brake_specific_fuel_consumption",
+            "corrected_brake_heat_rate",
+        ):
             keep(name, getattr(c, name), c.status & ~np.uint32(Reason.INPUT_MISSING))
         keep(
             "corrected_brake_power", c.corrected_power, c.status & ~np.uint32(Reason.INPUT_MISSING)

@@ -61,8 +61,9 @@ def test_geometry_volumes_and_speeds() -> None:
     assert g.displacement == pytest.approx(20 * g.swept_volume, rel=1e-15)
     # r = (V_s + V_c) / V_c, the definition
     assert (g.swept_volume + g.clearance_volume) / g.clearance_volume == pytest.approx(12.5)
-    back = EngineGeometry.from_clearance_volume(0.21, 0.24, 0.48, 20,
-                                                clearance_volume=g.clearance_volume)  # fmt: skip
+    back = EngineGeometry.from_clearance_volume(
+        0.21, 0.24, 0.48, 20, clearance_volume=g.clearance_volume
+    )
     assert back.compression_ratio == pytest.approx(12.5, rel=1e-14)
     assert float(g.mean_piston_speed(1500 * RPM)) == pytest.approx(2 * 0.24 * 25.0)
     # four-stroke: one cycle per two revolutions; two-stroke: one per revolution
@@ -101,8 +102,13 @@ def test_piston_position_against_a_numerical_crank_solution() -> None:
     ],
 )
 def test_geometry_misuse_raises(kwargs: dict[str, float]) -> None:
-    base = {"bore": 0.17, "stroke": 0.19, "connecting_rod_length": 0.38, "cylinders": 16,
-            "compression_ratio": 15.5}  # fmt: skip
+    base = {
+        "bore": 0.17,
+        "stroke": 0.19,
+        "connecting_rod_length": 0.38,
+        "cylinders": 16,
+        "compression_ratio": 15.5,
+    }
     with pytest.raises(ModelInputError):
         EngineGeometry(**{**base, **kwargs})  # type: ignore[arg-type]
 
@@ -123,22 +129,32 @@ def test_brake_figures_identities_and_trade_ranges() -> None:
     np.testing.assert_allclose(b.brake_specific_fuel_consumption * fuel.lhv, b.brake_heat_rate)
     np.testing.assert_allclose(b.brake_torque * 1500 * RPM, Pb, rtol=1e-14)
     # Heywood (2018), section 2.7: bmep = 2 pi n_R T / V_d (n_R = 2 for four-stroke)
-    np.testing.assert_allclose(b.brake_mean_effective_pressure,
-                               4 * math.pi * b.brake_torque / KR_GE1.displacement, rtol=1e-13)  # fmt: skip
+    np.testing.assert_allclose(
+        b.brake_mean_effective_pressure,
+        4 * math.pi * b.brake_torque / KR_GE1.displacement,
+        rtol=1e-13,
+    )
     # display units: g/kWh and kJ/kWh
     assert b.brake_heat_rate[0] * HEAT_RATE_KJ_PER_KWH == pytest.approx(
         3600 * 0.197 * float(fuel.lhv) / Pb[0]
     )
     assert b.brake_specific_fuel_consumption[0] * BSFC_G_PER_KWH == pytest.approx(
-        0.197e3 / (Pb[0] / 3.6e6))  # fmt: skip
+        0.197e3 / (Pb[0] / 3.6e6)
+    )
     # common practice: large gas engines at full load 40-49 % brake efficiency, BMEP 15-25 bar
     assert 0.40 <= b.brake_thermal_efficiency[0] <= 0.49
     assert 15e5 <= b.brake_mean_effective_pressure[0] <= 25e5
 
 
 def test_brake_figures_bad_elements() -> None:
-    b = brake_performance(KR_DG1, [2.0e6, np.nan, 2.0e6, 2.0e6], [0.11, 0.11, -0.1, 0.02],
-                          1500 * RPM, 42.7e6, generator_efficiency=0.96)  # fmt: skip
+    b = brake_performance(
+        KR_DG1,
+        [2.0e6, np.nan, 2.0e6, 2.0e6],
+        [0.11, 0.11, -0.1, 0.02],
+        1500 * RPM,
+        42.7e6,
+        generator_efficiency=0.96,
+    )
     assert b.status[0] == 0
     assert b.status[1] & Reason.INPUT_MISSING and np.isnan(b.brake_power[1])
     assert b.status[2] & Reason.INPUT_NONPHYSICAL and np.isnan(b.brake_thermal_efficiency[2])
@@ -163,8 +179,9 @@ def _nasa_species() -> dict[str, object]:
     return {s.name: s for s in ct.Species.list_from_file("nasa_gas.yaml")}
 
 
-def _cantera_exhaust(fuel_moles: dict[str, float], lam: float, air_x: dict[str, float],
-                     o2_demand: float) -> object:  # fmt: skip
+def _cantera_exhaust(
+    fuel_moles: dict[str, float], lam: float, air_x: dict[str, float], o2_demand: float
+) -> object:
     """Equilibrium products at 500 K of fuel with lam times the stoichiometric air."""
     names = ["N2", "O2", "Ar", "CO2", "H2O", "CH4", "C2H6", "C3H8", "CO", "H2", "OH"]
     species = _nasa_species()
@@ -331,8 +348,14 @@ def test_exhaust_heat_against_cantera() -> None:
 
 def test_chp_efficiency_arithmetic_and_trade_range() -> None:
     fuel_heat = 0.197 * 50.0e6
-    c = chp_efficiency(4.4e6, 0.197, 50.0e6, jacket_water_heat=[1.3e6, np.nan],
-                       lube_oil_heat=0.45e6, exhaust_heat_recovered=2.2e6)  # fmt: skip
+    c = chp_efficiency(
+        4.4e6,
+        0.197,
+        50.0e6,
+        jacket_water_heat=[1.3e6, np.nan],
+        lube_oil_heat=0.45e6,
+        exhaust_heat_recovered=2.2e6,
+    )
     assert c.thermal_efficiency[0] == pytest.approx(4.4e6 / fuel_heat)
     assert c.chp_total_efficiency[0] == pytest.approx((4.4e6 + 1.3e6 + 0.45e6 + 2.2e6) / fuel_heat)
     # common practice: gas-engine CHP reaches 80-90 % total efficiency (LHV)
@@ -350,8 +373,9 @@ def test_chp_efficiency_arithmetic_and_trade_range() -> None:
 def test_cutoff_ratio_estimate() -> None:
     # Constant specific heats: rc = 1 + q / (cp T2), T2 = T1 r^(gamma - 1), q = m_f LHV / m_ch.
     mf, ma, lhv, T1, r = 0.1, 3.2, 42.7e6, 330.0, 16.0
-    rc_, st = estimate_cutoff_ratio(r, T1, 3.0e5, fuel_mass_flow=mf, charge_mass_flow=ma,
-                                    lower_heating_value=lhv)  # fmt: skip
+    rc_, st = estimate_cutoff_ratio(
+        r, T1, 3.0e5, fuel_mass_flow=mf, charge_mass_flow=ma, lower_heating_value=lhv
+    )
     cp = 3.5 * rc.R_DRY_AIR
     assert st == 0
     assert float(rc_) == pytest.approx(1 + mf * lhv / ma / (cp * T1 * r**0.4), rel=1e-12)
@@ -366,20 +390,42 @@ def test_cutoff_ratio_estimate() -> None:
     sol.SV = s1, v1 / r
     T2, h2, p2 = sol.T, sol.enthalpy_mass, sol.P
     sol.HP = h2 + mf * lhv / ma, p2
-    rc_var, st = estimate_cutoff_ratio(r, T1, 3.0e5, fuel_mass_flow=mf, charge_mass_flow=ma,
-                                       lower_heating_value=lhv, fluid=rc.dry_air())  # fmt: skip
+    rc_var, st = estimate_cutoff_ratio(
+        r,
+        T1,
+        3.0e5,
+        fuel_mass_flow=mf,
+        charge_mass_flow=ma,
+        lower_heating_value=lhv,
+        fluid=rc.dry_air(),
+    )
     assert st == 0 and float(rc_var) == pytest.approx(sol.T / T2, rel=3e-5)
     # with a measured peak pressure part of the heat goes in at constant volume: smaller rc
-    rc_dual, st = estimate_cutoff_ratio(r, T1, 3.0e5, fuel_mass_flow=mf, charge_mass_flow=ma,
-                                        lower_heating_value=lhv, peak_pressure=1.3 * p2,
-                                        fluid=rc.dry_air())  # fmt: skip
+    rc_dual, st = estimate_cutoff_ratio(
+        r,
+        T1,
+        3.0e5,
+        fuel_mass_flow=mf,
+        charge_mass_flow=ma,
+        lower_heating_value=lhv,
+        peak_cylinder_pressure=1.3 * p2,
+        fluid=rc.dry_air(),
+    )
     assert st == 0 and 1.0 < float(rc_dual) < float(rc_var)
     with pytest.raises(ModelInputError):
-        rc.cycle_from_fuel("dual", r, T1, 3e5, fuel_mass_flow=mf, charge_mass_flow=ma,
-                           lower_heating_value=lhv)  # fmt: skip
+        rc.cycle_from_fuel(
+            "dual", r, T1, 3e5, fuel_mass_flow=mf, charge_mass_flow=ma, lower_heating_value=lhv
+        )
     with pytest.raises(ModelInputError):
-        rc.cycle_from_fuel("stirling", r, T1, 3e5, fuel_mass_flow=mf,  # type: ignore[arg-type]
-                           charge_mass_flow=ma, lower_heating_value=lhv)  # fmt: skip
+        rc.cycle_from_fuel(
+            "stirling",
+            r,
+            T1,
+            3e5,
+            fuel_mass_flow=mf,  # type: ignore[arg-type]
+            charge_mass_flow=ma,
+            lower_heating_value=lhv,
+        )
 
 
 def test_docstring_examples_run() -> None:

@@ -37,9 +37,17 @@ CAC = ISO3046_EXPONENTS["ci_turbocharged_charge_air_cooled"]
 G_PER_KWH = 3.6e9
 
 
-def _hand(p: float, T: float, rh: float, ps: float, tc: float, e: Iso3046Exponents, eta_m: float,
-          ref: tuple[float, float, float, float] = (100.0, 298.0, 0.3, 3.2),
-          tcr: float = 298.0) -> tuple[float, float, float]:  # fmt: skip
+def _hand(
+    p: float,
+    T: float,
+    rh: float,
+    ps: float,
+    tc: float,
+    e: Iso3046Exponents,
+    eta_m: float,
+    ref: tuple[float, float, float, float] = (100.0, 298.0, 0.3, 3.2),
+    tcr: float = 298.0,
+) -> tuple[float, float, float]:
     """k, alpha, beta by hand, pressures in kPa as the examples write them."""
     pr, Tr, rhr, psr = ref
     k = ((p - e.a * rh * ps) / (pr - e.a * rhr * psr)) ** e.m * (Tr / T) ** e.n * (tcr / tc) ** e.s
@@ -72,12 +80,20 @@ def test_worked_example_naturally_aspirated_hot_humid_site() -> None:
     assert float(a) == pytest.approx(a_h, rel=1.5e-3)
     assert float(fuel_consumption_adjustment_factor(k, a)) == pytest.approx(b_h, rel=1e-3)
     # site power and bsfc of the example: 366.8 kW, 228.8 g/kWh (hand values); corrected back
-    c = iso3046_correction(a_h * 500.0e3, b_h * 220.0 / G_PER_KWH, 87.0e3, 318.0, 0.8,
-                           exponents=NA, mechanical_efficiency=0.85)  # fmt: skip
+    c = iso3046_correction(
+        a_h * 500.0e3,
+        b_h * 220.0 / G_PER_KWH,
+        87.0e3,
+        318.0,
+        0.8,
+        exponents=NA,
+        mechanical_efficiency=0.85,
+    )
     assert c.status == 0
     assert float(c.corrected_power) == pytest.approx(500.0e3, rel=1.5e-3)
     assert float(c.corrected_brake_specific_fuel_consumption) * G_PER_KWH == pytest.approx(
-        220.0, rel=1e-3)  # fmt: skip
+        220.0, rel=1e-3
+    )
 
 
 def test_worked_example_altitude_with_substitute_reference() -> None:
@@ -104,8 +120,16 @@ def test_site_to_reference_to_test_bed() -> None:
     # (70 kPa, 330 K, coolant 300 K) to standard reference, then to the test bed (100 kPa,
     # 300 K, coolant 280 K).  Site -> reference -> site is the identity.
     _k_r, a_r, _ = _hand(70.0, 330.0, 0.3, 0.0, 300.0, CAC, 0.85)
-    c = iso3046_correction(640.0e3, 1.0e-8, 70.0e3, 330.0, 0.3, charge_air_coolant_temperature=300.0,
-                           exponents=CAC, mechanical_efficiency=0.85)  # fmt: skip
+    c = iso3046_correction(
+        640.0e3,
+        1.0e-8,
+        70.0e3,
+        330.0,
+        0.3,
+        charge_air_coolant_temperature=300.0,
+        exponents=CAC,
+        mechanical_efficiency=0.85,
+    )
     assert float(c.corrected_power) == pytest.approx(640.0e3 / a_r, rel=1e-12)
     assert float(c.corrected_power * c.power_adjustment_factor) == pytest.approx(640.0e3)
     _k_y, a_y, _ = _hand(100.0, 300.0, 0.3, 0.0, 280.0, CAC, 0.85)
@@ -133,10 +157,13 @@ def test_adjustment_directions_and_identities() -> None:
 
 def test_validity_flags() -> None:
     # brayscope's validity band (module docstring): 60-110 kPa, 243-333 K, coolant 273-333 K.
-    k, st = indicated_power_ratio([50.0e3, 100.0e3, 100.0e3, 100.0e3, np.nan, 100e3],
-                                  [298.0, 340.0, 298.0, 298.0, 298.0, 298.0],
-                                  [0.3, 0.3, 1.2, 0.3, 0.3, 0.3],
-                                  [298.0, 298.0, 298.0, 350.0, 298.0, 298.0], CAC)  # fmt: skip
+    k, st = indicated_power_ratio(
+        [50.0e3, 100.0e3, 100.0e3, 100.0e3, np.nan, 100e3],
+        [298.0, 340.0, 298.0, 298.0, 298.0, 298.0],
+        [0.3, 0.3, 1.2, 0.3, 0.3, 0.3],
+        [298.0, 298.0, 298.0, 350.0, 298.0, 298.0],
+        CAC,
+    )
     assert st[0] == Reason.CORRECTION_UNAVAILABLE and st[1] == Reason.CORRECTION_UNAVAILABLE
     assert st[2] == Reason.INPUT_NONPHYSICAL and st[3] == Reason.CORRECTION_UNAVAILABLE
     assert st[4] == Reason.INPUT_MISSING and st[5] == 0
@@ -147,8 +174,9 @@ def test_validity_flags() -> None:
     a, st = power_adjustment_factor([0.1, 0.9], [0.85, 1.2])
     assert np.isnan(a).all()
     assert st[0] == Reason.CORRECTION_UNAVAILABLE and st[1] == Reason.EFFICIENCY_OUT_OF_RANGE
-    c = iso3046_correction([300.0e3, -1.0], 2.2e-8 / 100, 90e3, 310.0, 0.5, exponents=NA,
-                           mechanical_efficiency=0.85)  # fmt: skip
+    c = iso3046_correction(
+        [300.0e3, -1.0], 2.2e-8 / 100, 90e3, 310.0, 0.5, exponents=NA, mechanical_efficiency=0.85
+    )
     assert c.status[0] == 0 and c.status[1] & Reason.INPUT_NONPHYSICAL
     assert np.isnan(c.corrected_power[1])
 

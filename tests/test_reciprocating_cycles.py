@@ -126,8 +126,7 @@ def _cantera_cycle(
     h3b = s.enthalpy_mass
     q_in = (u3a - u2) + (h3b - h3a)
     w = q_in - (u4 - u1)
-    return {"T": arr[:, 0], "p": arr[:, 1], "v": arr[:, 2], "q_in": q_in, "w": w,
-            "eta": w / q_in}  # fmt: skip
+    return {"T": arr[:, 0], "p": arr[:, 1], "v": arr[:, 2], "q_in": q_in, "w": w, "eta": w / q_in}
 
 
 def _work_by_integration(sol: object, T: np.ndarray, v: np.ndarray) -> float:
@@ -174,10 +173,10 @@ def test_closed_forms_reduce_to_each_other() -> None:
     # Identities: dual(alpha=1) = Diesel; dual(rc=1) = Diesel(rc=1) = Otto.
     r = np.array([6.0, 10.0, 14.0, 22.0])
     rc = np.array([1.0, 1.5, 2.0, 3.0])
-    np.testing.assert_allclose(dual_efficiency(r, 1.0, rc)[0], diesel_efficiency(r, rc)[0],
-                               rtol=1e-14)  # fmt: skip
-    np.testing.assert_allclose(dual_efficiency(r, 1.7, 1.0)[0], otto_efficiency(r)[0],
-                               rtol=1e-14)  # fmt: skip
+    np.testing.assert_allclose(
+        dual_efficiency(r, 1.0, rc)[0], diesel_efficiency(r, rc)[0], rtol=1e-14
+    )
+    np.testing.assert_allclose(dual_efficiency(r, 1.7, 1.0)[0], otto_efficiency(r)[0], rtol=1e-14)
     np.testing.assert_allclose(diesel_efficiency(r, 1.0)[0], otto_efficiency(r)[0], rtol=1e-14)
     # for equal r the Diesel cycle is the less efficient one (Heywood 2018, section 5.3)
     assert np.all(diesel_efficiency(r, 2.0)[0] < otto_efficiency(r)[0])
@@ -202,13 +201,16 @@ CASES_HEAT = [
 ]
 
 
-def _ours(kind: str, T1: float, p1: float, r: float, fluid: gas.Mixture | None,
-          **kw: float) -> cyc.ReciprocatingCycle:  # fmt: skip
+def _ours(
+    kind: str, T1: float, p1: float, r: float, fluid: gas.Mixture | None, **kw: float
+) -> cyc.ReciprocatingCycle:
     if kind == "otto":
-        return otto_cycle(T1, p1, r, heat_input=kw["q"], fluid=fluid)
+        return otto_cycle(T1, p1, r, cycle_heat_input=kw["q"], fluid=fluid)
     if kind == "diesel":
-        return diesel_cycle(T1, p1, r, heat_input=kw["q"], fluid=fluid)
-    return dual_cycle(T1, p1, r, heat_input=kw["q"], peak_pressure=kw["p_peak"], fluid=fluid)
+        return diesel_cycle(T1, p1, r, cycle_heat_input=kw["q"], fluid=fluid)
+    return dual_cycle(
+        T1, p1, r, cycle_heat_input=kw["q"], peak_cylinder_pressure=kw["p_peak"], fluid=fluid
+    )
 
 
 @pytest.mark.parametrize(("kind", "kw"), CASES_HEAT)
@@ -223,20 +225,20 @@ def test_air_standard_states_against_cantera(kind: str, kw: dict[str, float]) ->
     np.testing.assert_allclose(c.T, ref["T"], rtol=1e-8)
     np.testing.assert_allclose(c.p, ref["p"], rtol=1e-8)
     np.testing.assert_allclose(c.v, ref["v"], rtol=1e-8)
-    assert float(c.heat_input) == pytest.approx(kw["q"], rel=1e-12)
+    assert float(c.cycle_heat_input) == pytest.approx(kw["q"], rel=1e-12)
     assert float(c.efficiency) == pytest.approx(ref["eta"], rel=1e-8)
     # the ratio estimates agree with the closed forms
-    eta_cf, _ = dual_efficiency(r, c.pressure_ratio, c.cutoff_ratio)
+    eta_cf, _ = dual_efficiency(r, c.peak_pressure_ratio, c.cutoff_ratio)
     assert float(c.efficiency) == pytest.approx(float(eta_cf), rel=1e-10)
 
 
 def test_air_standard_otto_efficiency_independent_of_heat() -> None:
     # Identity of the constant-cp Otto cycle: eta = 1 - r^(1-gamma) whatever the heat added.
     q = np.array([2.0e5, 8.0e5, 1.6e6, 2.5e6])
-    c = otto_cycle(300.0, 1.0e5, 11.0, heat_input=q)
+    c = otto_cycle(300.0, 1.0e5, 11.0, cycle_heat_input=q)
     np.testing.assert_allclose(c.efficiency, otto_efficiency(11.0)[0], rtol=1e-12)
     # ratio and heat forms agree: the Diesel cycle with the cut-off the heat form estimated
-    d = diesel_cycle(300.0, 1.0e5, 17.0, heat_input=q)
+    d = diesel_cycle(300.0, 1.0e5, 17.0, cycle_heat_input=q)
     d2 = diesel_cycle(300.0, 1.0e5, 17.0, cutoff_ratio=d.cutoff_ratio)
     np.testing.assert_allclose(d2.T, d.T, rtol=1e-12)
     cp = 1.4 / 0.4 * R_DRY_AIR
@@ -266,7 +268,7 @@ def test_variable_property_states_against_cantera_nasa(kind: str, kw: dict[str, 
 def test_variable_property_ratio_form_against_cantera() -> None:
     sol = _nasa_dry_air()
     ref = _cantera_cycle(sol, 320.0, 2.5e5, 16.0, alpha=1.4, rc=1.7)
-    c = dual_cycle(320.0, 2.5e5, 16.0, pressure_ratio=1.4, cutoff_ratio=1.7, fluid=DRY)
+    c = dual_cycle(320.0, 2.5e5, 16.0, peak_pressure_ratio=1.4, cutoff_ratio=1.7, fluid=DRY)
     np.testing.assert_allclose(c.T, ref["T"], rtol=2e-5)
     assert float(c.efficiency) == pytest.approx(ref["eta"], abs=5e-5)
 
@@ -283,7 +285,9 @@ def test_first_law_net_work_equals_integral_of_p_dv(
     c = _ours(kind, 330.0, 3.0e5, 15.0, fluid, **kw)
     w_mech = _work_by_integration(sol, c.T, c.v)
     assert float(c.net_work) == pytest.approx(w_mech, rel=2e-5)
-    assert float(c.net_work) == pytest.approx(float(c.heat_input - c.heat_rejected), rel=1e-12)
+    assert float(c.net_work) == pytest.approx(
+        float(c.cycle_heat_input - c.cycle_heat_rejected), rel=1e-12
+    )
     mep = float(c.net_work) / float(c.v[0] - c.v[1])
     assert float(c.mean_effective_pressure) == pytest.approx(mep, rel=1e-12)
 
@@ -292,7 +296,7 @@ def test_variable_property_efficiency_falls_with_heat_input() -> None:
     # Physics: with cv rising with temperature, the constant-volume cycle's efficiency falls as
     # more heat is added (Heywood 2018, section 5.5, fuel-air cycle results).
     q = np.linspace(3.0e5, 2.0e6, 8)
-    c = otto_cycle(330.0, 3.0e5, 12.0, heat_input=q, fluid=DRY)
+    c = otto_cycle(330.0, 3.0e5, 12.0, cycle_heat_input=q, fluid=DRY)
     assert (c.status == 0).all()
     assert np.all(np.diff(c.efficiency) < 0)
     assert np.all(c.efficiency < otto_efficiency(12.0)[0])
@@ -303,10 +307,11 @@ def test_vectorised_over_a_batch_of_mixtures() -> None:
     x, _ = gas.humid_air(np.array([280.0, 300.0, 310.0]), 1.0e5, np.array([0.2, 0.6, 0.9]))
     mix = gas.Mixture.from_mole_fractions(x)
     q = np.array([1.2e6, 1.4e6, 1.6e6])
-    batch = diesel_cycle(330.0, 3.0e5, 16.0, heat_input=q, fluid=mix)
+    batch = diesel_cycle(330.0, 3.0e5, 16.0, cycle_heat_input=q, fluid=mix)
     for i in range(3):
-        one = diesel_cycle(330.0, 3.0e5, 16.0, heat_input=q[i],
-                           fluid=gas.Mixture.from_mole_fractions(x[i]))  # fmt: skip
+        one = diesel_cycle(
+            330.0, 3.0e5, 16.0, cycle_heat_input=q[i], fluid=gas.Mixture.from_mole_fractions(x[i])
+        )
         np.testing.assert_allclose(batch.T[i], one.T, rtol=1e-10)
 
 
@@ -317,16 +322,21 @@ def test_dual_cycle_clips_an_unusable_peak_pressure() -> None:
     # Below p2: the Diesel cycle; beyond what the heat reaches at constant volume: the Otto
     # cycle.  Both flagged PEAK_PRESSURE_CLIPPED (a warning: values kept).
     q = 1.2e6
-    base = {"heat_input": q}
-    d = dual_cycle(330.0, 3.0e5, 15.0, peak_pressure=[1.0e6, 5.0e8], **base)
+    base = {"cycle_heat_input": q}
+    d = dual_cycle(330.0, 3.0e5, 15.0, peak_cylinder_pressure=[1.0e6, 5.0e8], **base)
     assert (d.status == Reason.PEAK_PRESSURE_CLIPPED).all()
     np.testing.assert_allclose(d.efficiency[0], diesel_cycle(330.0, 3.0e5, 15.0, **base).efficiency)
     np.testing.assert_allclose(d.efficiency[1], otto_cycle(330.0, 3.0e5, 15.0, **base).efficiency)
 
 
 def test_bad_elements_are_nan_with_their_reason() -> None:
-    c = otto_cycle([330.0, np.nan, -1.0, 330.0, 330.0], 3.0e5, [12.0, 12.0, 12.0, 0.5, 12.0],
-                   heat_input=[1.0e6, 1.0e6, 1.0e6, 1.0e6, 9.0e6], fluid=DRY)  # fmt: skip
+    c = otto_cycle(
+        [330.0, np.nan, -1.0, 330.0, 330.0],
+        3.0e5,
+        [12.0, 12.0, 12.0, 0.5, 12.0],
+        cycle_heat_input=[1.0e6, 1.0e6, 1.0e6, 1.0e6, 9.0e6],
+        fluid=DRY,
+    )
     st = c.status
     assert st[0] == 0 and not np.isnan(c.T[0]).any()
     assert st[1] & Reason.INPUT_MISSING and np.isnan(c.T[1]).all()
@@ -339,12 +349,12 @@ def test_misuse_raises() -> None:
     with pytest.raises(ModelInputError):
         otto_cycle(300.0, 1e5, 10.0)  # neither form
     with pytest.raises(ModelInputError):
-        diesel_cycle(300.0, 1e5, 10.0, heat_input=1e6, cutoff_ratio=2.0)  # both forms
+        diesel_cycle(300.0, 1e5, 10.0, cycle_heat_input=1e6, cutoff_ratio=2.0)  # both forms
     with pytest.raises(ModelInputError):
-        dual_cycle(300.0, 1e5, 10.0, heat_input=1e6)  # heat form without the peak pressure
+        dual_cycle(300.0, 1e5, 10.0, cycle_heat_input=1e6)  # heat form without the peak pressure
     with pytest.raises(ModelInputError):
-        otto_cycle(300.0, 1e5, 10.0, heat_input=1e6, fluid="air")  # type: ignore[arg-type]
-    c = otto_cycle(300.0, 1e5, 10.0, heat_input=1e6)
+        otto_cycle(300.0, 1e5, 10.0, cycle_heat_input=1e6, fluid="air")  # type: ignore[arg-type]
+    c = otto_cycle(300.0, 1e5, 10.0, cycle_heat_input=1e6)
     with pytest.raises(ModelInputError):
         c.corner("5")
     T, p, v = (np.array([c.corner(n)[i] for n in CORNERS]) for i in range(3))

@@ -39,8 +39,11 @@ KR_GE1 = EngineGeometry(0.21, 0.24, 0.48, 20, 12.5)
 KR_DG1 = EngineGeometry(0.17, 0.19, 0.38, 16, 15.5)
 NG = gas_fuel({"CH4": 0.93, "C2H6": 0.04, "C3H8": 0.01, "N2": 0.01, "CO2": 0.01})
 GAS_OIL = liquid_fuel(42.7e6, 0.866, 0.134 - 1.0e-5, 1.0e-5)  # 10 mg/kg sulfur
-LOSSES = {"jacket_water_heat_fraction": 0.12, "lube_oil_heat_fraction": 0.05,
-          "radiation_heat_fraction": 0.015}  # fmt: skip
+LOSSES = {
+    "jacket_water_heat_fraction": 0.12,
+    "lube_oil_heat_fraction": 0.05,
+    "radiation_heat_fraction": 0.015,
+}
 
 
 def _errors(status: np.ndarray) -> np.ndarray:
@@ -53,16 +56,23 @@ def _gas_engine(n: int = 16, seed: int = 7, **kw: Any) -> tuple[dict[str, np.nda
         "brake_thermal_efficiency": rng.uniform(0.40, 0.46, n),
         "excess_air_ratio": rng.uniform(1.7, 2.1, n),
         "volumetric_efficiency": rng.uniform(0.88, 0.98, n),
-        "turbocharger_compressor_efficiency": rng.uniform(0.74, 0.82, n),
+        "turbocharger_compressor_isentropic_efficiency": rng.uniform(0.74, 0.82, n),
     }
     sensors, st = simulate_engine(
-        KR_GE1, NG, ambient_temperature=rng.uniform(263.0, 313.0, n),
+        KR_GE1,
+        NG,
+        ambient_temperature=rng.uniform(263.0, 313.0, n),
         ambient_pressure=rng.uniform(95.0e3, 102.0e3, n),
         ambient_relative_humidity=rng.uniform(0.1, 0.9, n),
-        generator_power=rng.uniform(2.5e6, 4.4e6, n), engine_speed=np.full(n, 1500 * RPM),
-        charge_air_temperature=rng.uniform(313.0, 323.0, n), premixed=True,
-        exhaust_stack_temperature=np.full(n, 393.15), **LOSSES, **truth, **kw,
-    )  # fmt: skip
+        generator_power=rng.uniform(2.5e6, 4.4e6, n),
+        engine_speed=np.full(n, 1500 * RPM),
+        charge_air_temperature=rng.uniform(313.0, 323.0, n),
+        premixed=True,
+        exhaust_stack_temperature=np.full(n, 393.15),
+        **LOSSES,
+        **truth,
+        **kw,
+    )
     assert not _errors(st).any()
     return sensors, truth
 
@@ -73,16 +83,22 @@ def _diesel(n: int = 12, seed: int = 3) -> tuple[dict[str, np.ndarray], dict]:
         "brake_thermal_efficiency": rng.uniform(0.38, 0.43, n),
         "excess_air_ratio": rng.uniform(1.8, 2.4, n),
         "volumetric_efficiency": rng.uniform(0.90, 1.0, n),
-        "turbocharger_compressor_efficiency": rng.uniform(0.72, 0.80, n),
+        "turbocharger_compressor_isentropic_efficiency": rng.uniform(0.72, 0.80, n),
     }
     sensors, st = simulate_engine(
-        KR_DG1, GAS_OIL, ambient_temperature=rng.uniform(263.0, 318.0, n),
+        KR_DG1,
+        GAS_OIL,
+        ambient_temperature=rng.uniform(263.0, 318.0, n),
         ambient_pressure=rng.uniform(94.0e3, 102.0e3, n),
         ambient_relative_humidity=rng.uniform(0.1, 0.9, n),
-        generator_power=rng.uniform(1.0e6, 2.0e6, n), engine_speed=np.full(n, 1500 * RPM),
-        charge_air_temperature=np.full(n, 318.0), generator_efficiency=0.96,
-        charge_air_coolant_temperature=rng.uniform(290.0, 310.0, n), **LOSSES, **truth,
-    )  # fmt: skip
+        generator_power=rng.uniform(1.0e6, 2.0e6, n),
+        engine_speed=np.full(n, 1500 * RPM),
+        charge_air_temperature=np.full(n, 318.0),
+        generator_efficiency=0.96,
+        charge_air_coolant_temperature=rng.uniform(290.0, 310.0, n),
+        **LOSSES,
+        **truth,
+    )
     assert not _errors(st).any()
     return sensors, truth
 
@@ -98,30 +114,42 @@ def _measured(sensors: dict[str, np.ndarray], drop: tuple[str, ...] = ()) -> dic
 def test_gas_engine_round_trip_recovers_health() -> None:
     # Identity: reconstruct_engine inverts simulate_engine; the health that went in comes out.
     sensors, truth = _gas_engine()
-    out = reconstruct_engine(_measured(sensors, drop=("air_mass_flow",)), KR_GE1, NG,
-                             cycle="otto", premixed=True)  # fmt: skip
+    out = reconstruct_engine(
+        _measured(sensors, drop=("air_mass_flow",)), KR_GE1, NG, cycle="otto", premixed=True
+    )
     assert not _errors(out.status).any()
     v = out.values
-    np.testing.assert_allclose(v["brake_thermal_efficiency"], truth["brake_thermal_efficiency"],
-                               rtol=1e-12)  # fmt: skip
+    np.testing.assert_allclose(
+        v["brake_thermal_efficiency"], truth["brake_thermal_efficiency"], rtol=1e-12
+    )
     np.testing.assert_allclose(v["excess_air_ratio"], truth["excess_air_ratio"], rtol=1e-10)
     np.testing.assert_allclose(v["air_mass_flow"], sensors["air_mass_flow"], rtol=1e-10)
-    np.testing.assert_allclose(v["volumetric_efficiency"], truth["volumetric_efficiency"],
-                               rtol=1e-9)  # fmt: skip
-    np.testing.assert_allclose(v["turbocharger_compressor_isentropic_efficiency"],
-                               truth["turbocharger_compressor_efficiency"], atol=1e-7)  # fmt: skip
+    np.testing.assert_allclose(
+        v["volumetric_efficiency"], truth["volumetric_efficiency"], rtol=1e-9
+    )
+    np.testing.assert_allclose(
+        v["turbocharger_compressor_isentropic_efficiency"],
+        truth["turbocharger_compressor_isentropic_efficiency"],
+        atol=1e-7,
+    )
     # first law: the unaccounted heat is the radiation loss the forward model put in
     np.testing.assert_allclose(v["unaccounted_heat_fraction"], 0.015, atol=1e-9)
     fuel_heat = sensors["fuel_mass_flow"] * NG.lhv
-    total = (sensors["generator_power"] + sensors["jacket_water_heat"] + sensors["lube_oil_heat"]
-             + sensors["charge_air_cooler_heat"] + sensors["exhaust_heat_recovered"]) / fuel_heat  # fmt: skip
+    total = (
+        sensors["generator_power"]
+        + sensors["jacket_water_heat"]
+        + sensors["lube_oil_heat"]
+        + sensors["charge_air_cooler_heat"]
+        + sensors["exhaust_heat_recovered"]
+    ) / fuel_heat
     np.testing.assert_allclose(v["chp_total_efficiency"], total, rtol=1e-12)
     assert (out.label_arrays["air_mass_flow_source"] == "oxygen").all()
     # ideal cycles beside the actual one
     np.testing.assert_allclose(v["ideal_otto_efficiency"], otto_efficiency(12.5)[0])
     assert np.all(v["ideal_cycle_efficiency"] < v["ideal_otto_efficiency"])
-    np.testing.assert_allclose(v["relative_efficiency"],
-                               v["brake_thermal_efficiency"] / v["ideal_cycle_efficiency"])  # fmt: skip
+    np.testing.assert_allclose(
+        v["relative_efficiency"], v["brake_thermal_efficiency"] / v["ideal_cycle_efficiency"]
+    )
     assert np.all((v["relative_efficiency"] > 0.6) & (v["relative_efficiency"] < 1.0))
 
 
@@ -130,38 +158,52 @@ def test_measured_air_flow_agrees_with_oxygen() -> None:
     out = reconstruct_engine(_measured(sensors), KR_GE1, NG, cycle="otto", premixed=True)
     v = out.values
     assert (out.label_arrays["air_mass_flow_source"] == "measured").all()
-    np.testing.assert_allclose(v["excess_air_ratio_from_air_flow"], truth["excess_air_ratio"],
-                               rtol=1e-10)  # fmt: skip
-    np.testing.assert_allclose(v["excess_air_ratio_from_oxygen"], truth["excess_air_ratio"],
-                               rtol=1e-10)  # fmt: skip
-    np.testing.assert_allclose(v["air_fuel_ratio"],
-                               sensors["air_mass_flow"] / sensors["fuel_mass_flow"])  # fmt: skip
+    np.testing.assert_allclose(
+        v["excess_air_ratio_from_air_flow"], truth["excess_air_ratio"], rtol=1e-10
+    )
+    np.testing.assert_allclose(
+        v["excess_air_ratio_from_oxygen"], truth["excess_air_ratio"], rtol=1e-10
+    )
+    np.testing.assert_allclose(
+        v["air_fuel_ratio"], sensors["air_mass_flow"] / sensors["fuel_mass_flow"]
+    )
 
 
 def test_diesel_round_trip_with_peak_pressure_and_iso3046() -> None:
     sensors, truth = _diesel()
     meas = _measured(sensors, drop=("air_mass_flow",))
-    out = reconstruct_engine(meas, KR_DG1, GAS_OIL, cycle="diesel", generator_efficiency=0.96,
-                             correction="iso3046",
-                             iso3046_exponents=ISO3046_EXPONENTS[
-                                 "ci_turbocharged_charge_air_cooled"],
-                             mechanical_efficiency=0.88)  # fmt: skip
+    out = reconstruct_engine(
+        meas,
+        KR_DG1,
+        GAS_OIL,
+        cycle="diesel",
+        generator_efficiency=0.96,
+        correction="iso3046",
+        iso3046_exponents=ISO3046_EXPONENTS["ci_turbocharged_charge_air_cooled"],
+        mechanical_efficiency=0.88,
+    )
     assert not _errors(out.status).any()
     v = out.values
-    np.testing.assert_allclose(v["brake_thermal_efficiency"], truth["brake_thermal_efficiency"],
-                               rtol=1e-12)  # fmt: skip
+    np.testing.assert_allclose(
+        v["brake_thermal_efficiency"], truth["brake_thermal_efficiency"], rtol=1e-12
+    )
     np.testing.assert_allclose(v["excess_air_ratio"], truth["excess_air_ratio"], rtol=1e-10)
-    np.testing.assert_allclose(v["volumetric_efficiency"], truth["volumetric_efficiency"],
-                               rtol=1e-9)  # fmt: skip
+    np.testing.assert_allclose(
+        v["volumetric_efficiency"], truth["volumetric_efficiency"], rtol=1e-9
+    )
     # the air-standard Diesel efficiency at the estimated cut-off
-    rc_, _ = estimate_cutoff_ratio(15.5, meas["charge_air_temperature"],
-                                   meas["charge_air_pressure"],
-                                   fuel_mass_flow=meas["fuel_mass_flow"],
-                                   charge_mass_flow=v["air_mass_flow"],
-                                   lower_heating_value=GAS_OIL.lhv)  # fmt: skip
+    rc_, _ = estimate_cutoff_ratio(
+        15.5,
+        meas["charge_air_temperature"],
+        meas["charge_air_pressure"],
+        fuel_mass_flow=meas["fuel_mass_flow"],
+        charge_mass_flow=v["air_mass_flow"],
+        lower_heating_value=GAS_OIL.lhv,
+    )
     np.testing.assert_allclose(v["cutoff_ratio"], rc_, rtol=1e-12)
-    np.testing.assert_allclose(v["ideal_diesel_efficiency"], diesel_efficiency(15.5, rc_)[0],
-                               rtol=1e-10)  # fmt: skip
+    np.testing.assert_allclose(
+        v["ideal_diesel_efficiency"], diesel_efficiency(15.5, rc_)[0], rtol=1e-10
+    )
     assert np.isfinite(v["corrected_brake_power"]).all()
     # with a peak-pressure reading: the dual cycle
     meas["peak_cylinder_pressure"] = np.full(len(rc_), 170.0e5)
@@ -179,21 +221,39 @@ def test_diesel_round_trip_with_peak_pressure_and_iso3046() -> None:
 def test_iso3046_correction_is_identity_at_reference_conditions() -> None:
     sensors, _ = _diesel(n=4, seed=5)
     meas = _measured(sensors)
-    meas.update(ambient_pressure=np.full(4, 100.0e3), ambient_temperature=np.full(4, 298.0),
-                ambient_relative_humidity=np.full(4, 0.30),
-                charge_air_coolant_temperature=np.full(4, 298.0))  # fmt: skip
-    out = reconstruct_engine(meas, KR_DG1, GAS_OIL, cycle="diesel", generator_efficiency=0.96,
-                             correction="iso3046", iso3046_exponents=ISO3046_EXPONENTS[
-                                 "ci_turbocharged_charge_air_cooled"])  # fmt: skip
+    meas.update(
+        ambient_pressure=np.full(4, 100.0e3),
+        ambient_temperature=np.full(4, 298.0),
+        ambient_relative_humidity=np.full(4, 0.30),
+        charge_air_coolant_temperature=np.full(4, 298.0),
+    )
+    out = reconstruct_engine(
+        meas,
+        KR_DG1,
+        GAS_OIL,
+        cycle="diesel",
+        generator_efficiency=0.96,
+        correction="iso3046",
+        iso3046_exponents=ISO3046_EXPONENTS["ci_turbocharged_charge_air_cooled"],
+    )
     v = out.values
     np.testing.assert_allclose(v["corrected_brake_power"], v["brake_power"], rtol=1e-12)
-    np.testing.assert_allclose(v["corrected_brake_specific_fuel_consumption"],
-                               v["brake_specific_fuel_consumption"], rtol=1e-12)  # fmt: skip
+    np.testing.assert_allclose(
+        v["corrected_brake_specific_fuel_consumption"],
+        v["brake_specific_fuel_consumption"],
+        rtol=1e-12,
+    )
     # a hot site: the corrected (reference) power is above the measured one
     meas["ambient_temperature"] = np.full(4, 313.0)
-    hot = reconstruct_engine(meas, KR_DG1, GAS_OIL, cycle="diesel", generator_efficiency=0.96,
-                             correction="iso3046", iso3046_exponents=ISO3046_EXPONENTS[
-                                 "ci_turbocharged_charge_air_cooled"])  # fmt: skip
+    hot = reconstruct_engine(
+        meas,
+        KR_DG1,
+        GAS_OIL,
+        cycle="diesel",
+        generator_efficiency=0.96,
+        correction="iso3046",
+        iso3046_exponents=ISO3046_EXPONENTS["ci_turbocharged_charge_air_cooled"],
+    )
     assert np.all(hot.values["corrected_brake_power"] > hot.values["brake_power"])
 
 
@@ -212,8 +272,10 @@ def test_forward_exhaust_temperature_against_cantera_energy_balance() -> None:
     species = {s.name: s for s in ct.Species.list_from_file("nasa_gas.yaml")}
     sol = ct.Solution(thermo="ideal-gas", species=[species[n] for n in names])
     for i in range(3):
-        T0, p0, rh = (sensors[k][i] for k in ("ambient_temperature", "ambient_pressure",
-                                              "ambient_relative_humidity"))  # fmt: skip
+        T0, p0, rh = (
+            sensors[k][i]
+            for k in ("ambient_temperature", "ambient_pressure", "ambient_relative_humidity")
+        )
         xa, _ = gas.humid_air(T0, p0, rh)
         air = {n: float(xa[INDEX[n]]) for n in names[:5]}
         m_f, m_a = sensors["fuel_mass_flow"][i], sensors["air_mass_flow"][i]
@@ -227,8 +289,13 @@ def test_forward_exhaust_temperature_against_cantera_energy_balance() -> None:
         ya = dict(zip(sol.species_names, sol.Y, strict=True))
         y = {n: m_a * ya[n] + m_f * float(NG.product_delta[INDEX[n]]) for n in names[:5]}
         P_b = sensors["generator_power"][i] / 0.975
-        out = (P_b + sensors["jacket_water_heat"][i] + sensors["lube_oil_heat"][i]
-               + sensors["charge_air_cooler_heat"][i] + 0.015 * m_f * float(NG.lhv))  # fmt: skip
+        out = (
+            P_b
+            + sensors["jacket_water_heat"][i]
+            + sensors["lube_oil_heat"][i]
+            + sensors["charge_air_cooler_heat"][i]
+            + 0.015 * m_f * float(NG.lhv)
+        )
         h_target = (H_in - out) / (m_a + m_f)
         sol.TPY = 700.0, p0, y
         sol.HP = h_target, p0
@@ -243,12 +310,22 @@ def test_trade_ranges_at_rated_load() -> None:
     # 9-12 % dry O2 (lambda 1.8-2.1), 380-480 degC after the turbocharger, CHP 80-92 % (LHV);
     # large high-speed Diesel gensets 195-225 g/kWh at rated load.
     s, _ = simulate_engine(
-        KR_GE1, NG, ambient_temperature=298.0, ambient_pressure=100.0e3,
-        ambient_relative_humidity=0.3, generator_power=4.4e6, engine_speed=1500 * RPM,
-        brake_thermal_efficiency=0.445, excess_air_ratio=1.9, volumetric_efficiency=0.93,
-        charge_air_temperature=318.0, turbocharger_compressor_efficiency=0.78, premixed=True,
-        exhaust_stack_temperature=393.15, **LOSSES,
-    )  # fmt: skip
+        KR_GE1,
+        NG,
+        ambient_temperature=298.0,
+        ambient_pressure=100.0e3,
+        ambient_relative_humidity=0.3,
+        generator_power=4.4e6,
+        engine_speed=1500 * RPM,
+        brake_thermal_efficiency=0.445,
+        excess_air_ratio=1.9,
+        volumetric_efficiency=0.93,
+        charge_air_temperature=318.0,
+        turbocharger_compressor_isentropic_efficiency=0.78,
+        premixed=True,
+        exhaust_stack_temperature=393.15,
+        **LOSSES,
+    )
     v = reconstruct_engine(_measured(s), KR_GE1, NG, cycle="otto", premixed=True).values
     assert 0.40 <= v["brake_thermal_efficiency"] <= 0.49
     assert 15e5 <= v["brake_mean_effective_pressure"] <= 25e5
@@ -257,14 +334,24 @@ def test_trade_ranges_at_rated_load() -> None:
     assert 0.80 <= v["chp_total_efficiency"] <= 0.92
     assert 2.5e5 <= s["charge_air_pressure"] <= 4.5e5  # boost of lean-burn engines at 20 bar
     d, _ = simulate_engine(
-        KR_DG1, GAS_OIL, ambient_temperature=298.0, ambient_pressure=100.0e3,
-        ambient_relative_humidity=0.3, generator_power=2.0e6, engine_speed=1500 * RPM,
-        brake_thermal_efficiency=0.41, excess_air_ratio=2.1, volumetric_efficiency=0.95,
-        charge_air_temperature=318.0, turbocharger_compressor_efficiency=0.76,
-        generator_efficiency=0.96, **LOSSES,
-    )  # fmt: skip
-    dv = reconstruct_engine(_measured(d), KR_DG1, GAS_OIL, cycle="diesel",
-                            generator_efficiency=0.96).values  # fmt: skip
+        KR_DG1,
+        GAS_OIL,
+        ambient_temperature=298.0,
+        ambient_pressure=100.0e3,
+        ambient_relative_humidity=0.3,
+        generator_power=2.0e6,
+        engine_speed=1500 * RPM,
+        brake_thermal_efficiency=0.41,
+        excess_air_ratio=2.1,
+        volumetric_efficiency=0.95,
+        charge_air_temperature=318.0,
+        turbocharger_compressor_isentropic_efficiency=0.76,
+        generator_efficiency=0.96,
+        **LOSSES,
+    )
+    dv = reconstruct_engine(
+        _measured(d), KR_DG1, GAS_OIL, cycle="diesel", generator_efficiency=0.96
+    ).values
     assert 195.0 <= dv["brake_specific_fuel_consumption"] * BSFC_G_PER_KWH <= 225.0
     assert 1.2 <= dv["cutoff_ratio"] <= 3.0
 
@@ -280,8 +367,13 @@ def test_bad_sensor_removes_only_its_own_results() -> None:
     v, st = out.values, out.status
     assert _errors(st)[0] == 0 and _errors(st)[3] == 0
     assert st[1] & Reason.INPUT_MISSING and st[2] & Reason.INPUT_NONPHYSICAL
-    for name in ("brake_thermal_efficiency", "brake_mean_effective_pressure", "thermal_efficiency",
-                 "ideal_otto_efficiency", "chp_total_efficiency"):  # fmt: skip
+    for name in (
+        "brake_thermal_efficiency",
+        "brake_mean_effective_pressure",
+        "thermal_efficiency",
+        "ideal_otto_efficiency",
+        "chp_total_efficiency",
+    ):
         assert np.isfinite(v[name]).all(), name
     assert np.isnan(v["volumetric_efficiency"][[1, 2]]).all()
     assert np.isnan(v["ideal_cycle_efficiency"][[1, 2]]).all()
@@ -305,8 +397,9 @@ def test_misuse_raises() -> None:
     sensors, _ = _gas_engine(n=2)
     meas = _measured(sensors)
     with pytest.raises(ModelInputError):
-        reconstruct_engine({k: v for k, v in meas.items() if k != "fuel_mass_flow"}, KR_GE1, NG,
-                           cycle="otto")  # fmt: skip
+        reconstruct_engine(
+            {k: v for k, v in meas.items() if k != "fuel_mass_flow"}, KR_GE1, NG, cycle="otto"
+        )
     with pytest.raises(ModelInputError):
         reconstruct_engine(meas, KR_GE1, NG, cycle="brayton")  # type: ignore[arg-type]
     with pytest.raises(ModelInputError):

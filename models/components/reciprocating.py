@@ -223,8 +223,14 @@ class EngineGeometry:
         if not (isinstance(clearance_volume, int | float) and clearance_volume > 0):
             raise ModelInputError("clearance_volume", clearance_volume, "> 0 m3")
         vs = math.pi / 4 * bore**2 * stroke
-        return cls(bore, stroke, connecting_rod_length, cylinders,
-                   (vs + clearance_volume) / clearance_volume, strokes_per_cycle)  # fmt: skip
+        return cls(
+            bore,
+            stroke,
+            connecting_rod_length,
+            cylinders,
+            (vs + clearance_volume) / clearance_volume,
+            strokes_per_cycle,
+        )
 
     @property
     def swept_volume(self) -> float:
@@ -248,8 +254,10 @@ class EngineGeometry:
 
     def cycles_per_second(self, speed: ArrayLike) -> FloatArray:
         """Working cycles per second of one cylinder, n / n_R [1/s] (eq. 2); speed [rad/s]."""
-        return np.asarray(np.asarray(speed, dtype=np.float64) / (2 * math.pi)
-                          / self.revolutions_per_cycle, dtype=np.float64)  # fmt: skip
+        return np.asarray(
+            np.asarray(speed, dtype=np.float64) / (2 * math.pi) / self.revolutions_per_cycle,
+            dtype=np.float64,
+        )
 
     def mean_piston_speed(self, speed: ArrayLike) -> FloatArray:
         """Mean piston speed c_m = 2 S n [m/s] (eq. 3) at engine speed ``speed`` [rad/s]."""
@@ -364,9 +372,11 @@ def brake_performance(
     21.72
     """
     (Pg, mf, w, lhv), status = _inputs(
-        (generator_power, "pos"), (fuel_mass_flow, "pos"), (speed, "pos"),
+        (generator_power, "pos"),
+        (fuel_mass_flow, "pos"),
+        (speed, "pos"),
         (lower_heating_value, "pos"),
-    )  # fmt: skip
+    )
     Pb, st = machine.shaft_power(Pg, generator_efficiency, mechanical_loss)
     status = np.asarray(status | st, dtype=np.uint32)
     Pb = np.where(np.isnan(Pb), 1.0, Pb)
@@ -454,8 +464,12 @@ def _o2_coefficients(
     c = -pd[..., _I_O2] / _M[_I_O2]
     a = a_st * ((y * keep) @ (1.0 / _M))
     b = (pd * keep) @ (1.0 / _M)
-    return (np.asarray(c, dtype=np.float64), np.asarray(a, dtype=np.float64),
-            np.asarray(b, dtype=np.float64), np.asarray(a_st, dtype=np.float64))  # fmt: skip
+    return (
+        np.asarray(c, dtype=np.float64),
+        np.asarray(a, dtype=np.float64),
+        np.asarray(b, dtype=np.float64),
+        np.asarray(a_st, dtype=np.float64),
+    )
 
 
 def exhaust_oxygen(
@@ -599,8 +613,9 @@ def excess_air_ratio_from_air_flow(
     """
     air = dry_air() if air is None else air
     *_, a_st = _o2_coefficients(fuel, air, "wet")
-    (ma, mf), status = _inputs((air_mass_flow, "pos"), (fuel_mass_flow, "pos"),
-                               shape=np.shape(a_st))  # fmt: skip
+    (ma, mf), status = _inputs(
+        (air_mass_flow, "pos"), (fuel_mass_flow, "pos"), shape=np.shape(a_st)
+    )
     return _nan(ma / (mf * a_st), status), status
 
 
@@ -636,8 +651,9 @@ def charge_density(
     """
     mix = dry_air() if fluid is None else fluid
     (T, p), status = _inputs((temperature, "pos"), (pressure, "pos"), shape=mix.shape)
-    _flag(status, (status == 0) & ((T < gas.T_MIN) | (T > gas.T_MAX)),
-          Reason.TEMPERATURE_OUT_OF_RANGE)  # fmt: skip
+    _flag(
+        status, (status == 0) & ((T < gas.T_MIN) | (T > gas.T_MAX)), Reason.TEMPERATURE_OUT_OF_RANGE
+    )
     _flag(status, (status == 0) & (p > gas.P_MAX_REAL), Reason.PRESSURE_OUT_OF_RANGE)
     Z = gas.compressibility(np.where(status == 0, T, 300.0), np.where(status == 0, p, 1e5))
     rho = p / ((Z if real_gas else 1.0) * mix.R * T)
@@ -687,8 +703,9 @@ def volumetric_efficiency(
     rho, status = charge_density(receiver_temperature, receiver_pressure, fluid)
     (m, w), st = _inputs((charge_mass_flow, "pos"), (speed, "pos"), shape=rho.shape)
     status = np.asarray(status | st, dtype=np.uint32)
-    eta = m / (np.where(np.isnan(rho), 1.0, rho) * geometry.displacement
-               * geometry.cycles_per_second(w))  # fmt: skip
+    eta = m / (
+        np.where(np.isnan(rho), 1.0, rho) * geometry.displacement * geometry.cycles_per_second(w)
+    )
     return _nan(eta, status), status
 
 
@@ -722,8 +739,7 @@ def turbocharger_compressor(
     :func:`models.compressor.compressor`: eta_c = (h2s - h1) / (h2 - h1).  With one
     compressor stage per engine bank, pass each bank's readings separately.
     """
-    st = compressor(fluid, inlet_temperature, inlet_pressure, outlet_temperature,
-                    outlet_pressure)  # fmt: skip
+    st = compressor(fluid, inlet_temperature, inlet_pressure, outlet_temperature, outlet_pressure)
     status = np.array(st.status & ~np.uint32(Reason.EFFICIENCY_IMPLAUSIBLE), dtype=np.uint32)
     eta = st.isentropic_efficiency
     lo, hi = TURBOCHARGER_EFFICIENCY_BAND
@@ -755,9 +771,11 @@ def exhaust_heat(
     status : ndarray of uint32
     """
     (m, t_in, t_out), status = _inputs(
-        (exhaust_mass_flow, "pos"), (temperature_in, "pos"), (temperature_out, "pos"),
+        (exhaust_mass_flow, "pos"),
+        (temperature_in, "pos"),
+        (temperature_out, "pos"),
         shape=exhaust.shape,
-    )  # fmt: skip
+    )
     _flag(status, (status == 0) & (t_out > t_in), Reason.INPUT_NONPHYSICAL)
     q = m * (exhaust.h(t_in) - exhaust.h(t_out))
     _flag(status, (status == 0) & np.isnan(q), Reason.TEMPERATURE_OUT_OF_RANGE)
@@ -829,12 +847,17 @@ array_like, optional
     >>> [round(float(v), 4) for v in (c.thermal_efficiency, c.chp_total_efficiency)]
     [0.4272, 0.7864]
     """
-    heats = [h for h in (jacket_water_heat, lube_oil_heat, charge_air_cooler_heat,
-                         exhaust_heat_recovered) if h is not None]  # fmt: skip
+    heats = [
+        h
+        for h in (jacket_water_heat, lube_oil_heat, charge_air_cooler_heat, exhaust_heat_recovered)
+        if h is not None
+    ]
     (Pg, mf, lhv, *qs), status = _inputs(
-        (generator_power, "pos"), (fuel_mass_flow, "pos"), (lower_heating_value, "pos"),
+        (generator_power, "pos"),
+        (fuel_mass_flow, "pos"),
+        (lower_heating_value, "pos"),
         *((h, "nonneg") for h in heats),
-    )  # fmt: skip
+    )
     fuel_heat = mf * lhv
     eta_el = Pg / fuel_heat
     q = np.zeros(status.shape)
@@ -887,9 +910,11 @@ def heat_input_per_charge(
     ratio is the same on a flow basis, so flows may be passed directly.
     """
     (mf, mch, lhv, eta), status = _inputs(
-        (fuel_mass_flow, "pos"), (charge_mass_flow, "pos"), (lower_heating_value, "pos"),
+        (fuel_mass_flow, "pos"),
+        (charge_mass_flow, "pos"),
+        (lower_heating_value, "pos"),
         (combustion_efficiency, "frac"),
-    )  # fmt: skip
+    )
     return _nan(eta * mf * lhv / mch, status), status
 
 
@@ -902,7 +927,7 @@ def cycle_from_fuel(
     fuel_mass_flow: ArrayLike,
     charge_mass_flow: ArrayLike,
     lower_heating_value: ArrayLike,
-    peak_pressure: ArrayLike | None = None,
+    peak_cylinder_pressure: ArrayLike | None = None,
     fluid: gas.Mixture | None = None,
     combustion_efficiency: ArrayLike = 1.0,
     gamma: ArrayLike = GAMMA_AIR,
@@ -913,7 +938,7 @@ def cycle_from_fuel(
     Parameters
     ----------
     kind : {"otto", "diesel", "dual"}
-        Otto for spark-ignition gas engines, Diesel or dual (with ``peak_pressure``) for
+        Otto for spark-ignition gas engines, Diesel or dual (with ``peak_cylinder_pressure``) for
         compression ignition.
     compression_ratio : array_like
         Geometric compression ratio r [-].
@@ -922,7 +947,7 @@ def cycle_from_fuel(
         pressure (no intake heating, no valve pressure loss).
     fuel_mass_flow, charge_mass_flow, lower_heating_value, combustion_efficiency
         As :func:`heat_input_per_charge`.
-    peak_pressure : array_like, optional
+    peak_cylinder_pressure : array_like, optional
         Measured peak cylinder pressure [Pa]; needed for ``"dual"``.
     fluid : models.gas.Mixture, optional
         None: air standard (constant ``gamma``, ``gas_constant``); a mixture: variable
@@ -935,20 +960,31 @@ def cycle_from_fuel(
     models.cycles.reciprocating.ReciprocatingCycle
         ``cutoff_ratio`` is the estimate of :func:`estimate_cutoff_ratio`.
     """
-    q, st = heat_input_per_charge(fuel_mass_flow, charge_mass_flow, lower_heating_value,
-                                  combustion_efficiency)  # fmt: skip
+    q, st = heat_input_per_charge(
+        fuel_mass_flow, charge_mass_flow, lower_heating_value, combustion_efficiency
+    )
     r = compression_ratio
     if kind == "otto":
-        cyc = otto_cycle(T1, p1, r, heat_input=q, fluid=fluid, gamma=gamma,
-                         gas_constant=gas_constant)  # fmt: skip
+        cyc = otto_cycle(
+            T1, p1, r, cycle_heat_input=q, fluid=fluid, gamma=gamma, gas_constant=gas_constant
+        )
     elif kind == "diesel":
-        cyc = diesel_cycle(T1, p1, r, heat_input=q, fluid=fluid, gamma=gamma,
-                           gas_constant=gas_constant)  # fmt: skip
+        cyc = diesel_cycle(
+            T1, p1, r, cycle_heat_input=q, fluid=fluid, gamma=gamma, gas_constant=gas_constant
+        )
     elif kind == "dual":
-        if peak_pressure is None:
-            raise ModelInputError("peak_pressure", None, "a pressure [Pa] for kind='dual'")
-        cyc = dual_cycle(T1, p1, r, heat_input=q, peak_pressure=peak_pressure, fluid=fluid,
-                         gamma=gamma, gas_constant=gas_constant)  # fmt: skip
+        if peak_cylinder_pressure is None:
+            raise ModelInputError("peak_cylinder_pressure", None, "a pressure [Pa] for kind='dual'")
+        cyc = dual_cycle(
+            T1,
+            p1,
+            r,
+            cycle_heat_input=q,
+            peak_cylinder_pressure=peak_cylinder_pressure,
+            fluid=fluid,
+            gamma=gamma,
+            gas_constant=gas_constant,
+        )
     else:
         raise ModelInputError("kind", kind, "'otto', 'diesel' or 'dual'")
     return replace(cyc, status=np.broadcast_to(st, cyc.status.shape) | cyc.status)
@@ -962,7 +998,7 @@ def estimate_cutoff_ratio(
     fuel_mass_flow: ArrayLike,
     charge_mass_flow: ArrayLike,
     lower_heating_value: ArrayLike,
-    peak_pressure: ArrayLike | None = None,
+    peak_cylinder_pressure: ArrayLike | None = None,
     fluid: gas.Mixture | None = None,
     combustion_efficiency: ArrayLike = 1.0,
     gamma: ArrayLike = GAMMA_AIR,
@@ -979,7 +1015,7 @@ def estimate_cutoff_ratio(
         Fuel and trapped charge [kg/s], or per cycle [kg] (same basis).
     lower_heating_value : array_like
         LHV [J/kg].
-    peak_pressure : array_like, optional
+    peak_cylinder_pressure : array_like, optional
         Measured peak cylinder pressure [Pa]: the dual cycle, with part of the heat at
         constant volume.
     fluid : models.gas.Mixture, optional
@@ -1020,10 +1056,18 @@ def estimate_cutoff_ratio(
     >>> round(float(rc), 3)
     2.328
     """
-    kind: Literal["diesel", "dual"] = "diesel" if peak_pressure is None else "dual"
-    cyc = cycle_from_fuel(kind, compression_ratio, T1, p1, fuel_mass_flow=fuel_mass_flow,
-                          charge_mass_flow=charge_mass_flow,
-                          lower_heating_value=lower_heating_value, peak_pressure=peak_pressure,
-                          fluid=fluid, combustion_efficiency=combustion_efficiency,
-                          gamma=gamma)  # fmt: skip
+    kind: Literal["diesel", "dual"] = "diesel" if peak_cylinder_pressure is None else "dual"
+    cyc = cycle_from_fuel(
+        kind,
+        compression_ratio,
+        T1,
+        p1,
+        fuel_mass_flow=fuel_mass_flow,
+        charge_mass_flow=charge_mass_flow,
+        lower_heating_value=lower_heating_value,
+        peak_cylinder_pressure=peak_cylinder_pressure,
+        fluid=fluid,
+        combustion_efficiency=combustion_efficiency,
+        gamma=gamma,
+    )
     return cyc.cutoff_ratio, cyc.status

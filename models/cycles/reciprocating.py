@@ -32,14 +32,14 @@ ideal-gas construct by definition.
 
 How a cycle is specified
 ------------------------
-Either by its ratios (compression ratio r, pressure ratio alpha = p3a/p2, cut-off ratio rc =
-v3b/v3a) or by the heat added per unit mass ``heat_input`` (from the fuel burnt per cycle and
-the trapped charge): the Otto cycle adds it all at constant volume, the Diesel cycle all at
-constant pressure, and the dual cycle at constant volume until the measured
-``peak_pressure`` is reached and the rest at constant pressure.  A peak pressure below the
-compression end pressure p2 (the cycle becomes a Diesel cycle) or above what the heat input
-can reach at constant volume (an Otto cycle) is clipped and flagged ``PEAK_PRESSURE_CLIPPED``
-(a warning).
+Either by its ratios (compression ratio r, peak-pressure ratio alpha = p3a/p2, cut-off ratio
+rc = v3b/v3a) or by the heat added per unit mass, ``cycle_heat_input`` (from the fuel burnt per
+cycle and the trapped charge): the Otto cycle adds it all at constant volume, the Diesel cycle
+all at constant pressure, and the dual cycle at constant volume until the measured
+``peak_cylinder_pressure`` is reached and the rest at constant pressure.  A peak pressure
+below the compression end pressure p2 (the cycle becomes a Diesel cycle) or above what the
+heat input can reach at constant volume (an Otto cycle) is clipped and flagged
+``PEAK_PRESSURE_CLIPPED`` (a warning).
 
 Status (per element; NaN on error): ``INPUT_MISSING`` (NaN input), ``INPUT_NONPHYSICAL``
 (T1 <= 0, p1 <= 0, r <= 1, alpha < 1, rc < 1, q < 0, gamma <= 1, R <= 0, peak pressure <= 0),
@@ -213,7 +213,7 @@ def diesel_efficiency(
 
 def dual_efficiency(
     compression_ratio: ArrayLike,
-    pressure_ratio: ArrayLike,
+    peak_pressure_ratio: ArrayLike,
     cutoff_ratio: ArrayLike,
     gamma: ArrayLike = GAMMA_AIR,
 ) -> tuple[FloatArray, StatusArray]:
@@ -223,7 +223,7 @@ def dual_efficiency(
     ----------
     compression_ratio : array_like
         r = V_BDC / V_TDC [-], > 1.
-    pressure_ratio : array_like
+    peak_pressure_ratio : array_like
         alpha = p_3a / p_2, peak pressure over compression end pressure [-], >= 1.
     cutoff_ratio : array_like
         rc = V_3b / V_TDC [-], >= 1.
@@ -256,7 +256,7 @@ def dual_efficiency(
     [0.6138, 0.6497]
     """
     r = _f(compression_ratio)
-    a = _f(pressure_ratio)
+    a = _f(peak_pressure_ratio)
     rc = _f(cutoff_ratio)
     g = _f(gamma)
     shape = np.broadcast(r, a, rc, g).shape
@@ -401,13 +401,13 @@ class ReciprocatingCycle:
         Specific volume per corner [m3/kg].
     compression_ratio : ndarray
         r = v1 / v2 [-].
-    pressure_ratio : ndarray
+    peak_pressure_ratio : ndarray
         alpha = p3a / p2 [-] (1 for the Diesel cycle).
     cutoff_ratio : ndarray
         rc = v3b / v3a [-] (1 for the Otto cycle).
-    heat_input : ndarray
+    cycle_heat_input : ndarray
         q_in, eq. (1) of the module [J/kg].
-    heat_rejected : ndarray
+    cycle_heat_rejected : ndarray
         q_out = u4 - u1 [J/kg].
     net_work : ndarray
         w_net = q_in - q_out [J/kg].
@@ -423,10 +423,10 @@ class ReciprocatingCycle:
     p: FloatArray
     v: FloatArray
     compression_ratio: FloatArray
-    pressure_ratio: FloatArray
+    peak_pressure_ratio: FloatArray
     cutoff_ratio: FloatArray
-    heat_input: FloatArray
-    heat_rejected: FloatArray
+    cycle_heat_input: FloatArray
+    cycle_heat_rejected: FloatArray
     net_work: FloatArray
     efficiency: FloatArray
     mean_effective_pressure: FloatArray
@@ -469,19 +469,25 @@ def _cycle(
     *,
     mode: Literal["ratios", "heat"],
     kind: Literal["otto", "diesel", "dual"],
-    pressure_ratio: ArrayLike = 1.0,
+    peak_pressure_ratio: ArrayLike = 1.0,
     cutoff_ratio: ArrayLike = 1.0,
-    heat_input: ArrayLike = 0.0,
-    peak_pressure: ArrayLike = np.inf,
+    cycle_heat_input: ArrayLike = 0.0,
+    peak_cylinder_pressure: ArrayLike = np.inf,
     fluid: gas.Mixture | None,
     gamma: ArrayLike,
     gas_constant: ArrayLike,
 ) -> ReciprocatingCycle:
     props, pshape, g, R = _props(fluid, gamma, gas_constant)
     T1a, p1a, r = _f(T1), _f(p1), _f(compression_ratio)
-    al, rc, q, pmax = _f(pressure_ratio), _f(cutoff_ratio), _f(heat_input), _f(peak_pressure)
-    shape = np.broadcast_shapes(T1a.shape, p1a.shape, r.shape, al.shape, rc.shape, q.shape,
-                                pmax.shape, pshape)  # fmt: skip
+    al, rc, q, pmax = (
+        _f(peak_pressure_ratio),
+        _f(cutoff_ratio),
+        _f(cycle_heat_input),
+        _f(peak_cylinder_pressure),
+    )
+    shape = np.broadcast_shapes(
+        T1a.shape, p1a.shape, r.shape, al.shape, rc.shape, q.shape, pmax.shape, pshape
+    )
     status = np.zeros(shape, dtype=np.uint32)
     checks: list[tuple[FloatArray, float, bool, float]] = [
         (T1a, 0.0, True, 300.0),
@@ -560,10 +566,10 @@ def _cycle(
         p=corners(p1s, p2, p3, p3, Rb * T4 / v1),
         v=corners(v1, v2, v2, v3b, v1),
         compression_ratio=nan(rs),
-        pressure_ratio=nan(T3a / T2),
+        peak_pressure_ratio=nan(T3a / T2),
         cutoff_ratio=nan(T3b / T3a),
-        heat_input=nan(q_in),
-        heat_rejected=nan(q_out),
+        cycle_heat_input=nan(q_in),
+        cycle_heat_rejected=nan(q_out),
         net_work=nan(w),
         efficiency=nan(eta),
         mean_effective_pressure=nan(w / (v1 - v2)),
@@ -584,8 +590,8 @@ def otto_cycle(
     p1: ArrayLike,
     compression_ratio: ArrayLike,
     *,
-    heat_input: ArrayLike | None = None,
-    pressure_ratio: ArrayLike | None = None,
+    cycle_heat_input: ArrayLike | None = None,
+    peak_pressure_ratio: ArrayLike | None = None,
     fluid: gas.Mixture | None = None,
     gamma: ArrayLike = GAMMA_AIR,
     gas_constant: ArrayLike = R_DRY_AIR,
@@ -600,9 +606,9 @@ def otto_cycle(
         Pressure at BDC before compression [Pa].
     compression_ratio : array_like
         r = v1/v2 [-], > 1.
-    heat_input : array_like, optional
-        Heat added per unit mass of charge [J/kg], >= 0.  Give this or ``pressure_ratio``.
-    pressure_ratio : array_like, optional
+    cycle_heat_input : array_like, optional
+        Heat added per unit mass of charge [J/kg], >= 0.  Give this or ``peak_pressure_ratio``.
+    peak_pressure_ratio : array_like, optional
         alpha = p3/p2 [-], >= 1.
     fluid : models.gas.Mixture, optional
         None (default): constant specific heats from ``gamma`` and ``gas_constant`` (the
@@ -620,7 +626,8 @@ def otto_cycle(
     Raises
     ------
     ModelInputError
-        Neither or both of ``heat_input`` and ``pressure_ratio``; ``fluid`` not a Mixture.
+        Neither or both of ``cycle_heat_input`` and ``peak_pressure_ratio``; ``fluid`` not a
+        Mixture.
 
     Notes
     -----
@@ -638,19 +645,38 @@ def otto_cycle(
     --------
     Air standard, r = 10, 300 K, 100 kPa, 1800 kJ/kg:
 
-    >>> c = otto_cycle(300.0, 1.0e5, 10.0, heat_input=1.8e6)
+    >>> c = otto_cycle(300.0, 1.0e5, 10.0, cycle_heat_input=1.8e6)
     >>> round(float(c.efficiency), 4), round(float(c.peak_temperature))
     (0.6019, 3262)
     """
-    which = _one_of("otto_cycle", heat_input=heat_input, pressure_ratio=pressure_ratio)
-    if which == "heat_input":
-        assert heat_input is not None
-        return _cycle(T1, p1, compression_ratio, mode="heat", kind="otto", heat_input=heat_input,
-                      fluid=fluid, gamma=gamma, gas_constant=gas_constant)  # fmt: skip
-    assert pressure_ratio is not None
-    return _cycle(T1, p1, compression_ratio, mode="ratios", kind="otto",
-                  pressure_ratio=pressure_ratio, fluid=fluid, gamma=gamma,
-                  gas_constant=gas_constant)  # fmt: skip
+    which = _one_of(
+        "otto_cycle", cycle_heat_input=cycle_heat_input, peak_pressure_ratio=peak_pressure_ratio
+    )
+    if which == "cycle_heat_input":
+        assert cycle_heat_input is not None
+        return _cycle(
+            T1,
+            p1,
+            compression_ratio,
+            mode="heat",
+            kind="otto",
+            cycle_heat_input=cycle_heat_input,
+            fluid=fluid,
+            gamma=gamma,
+            gas_constant=gas_constant,
+        )
+    assert peak_pressure_ratio is not None
+    return _cycle(
+        T1,
+        p1,
+        compression_ratio,
+        mode="ratios",
+        kind="otto",
+        peak_pressure_ratio=peak_pressure_ratio,
+        fluid=fluid,
+        gamma=gamma,
+        gas_constant=gas_constant,
+    )
 
 
 def diesel_cycle(
@@ -658,7 +684,7 @@ def diesel_cycle(
     p1: ArrayLike,
     compression_ratio: ArrayLike,
     *,
-    heat_input: ArrayLike | None = None,
+    cycle_heat_input: ArrayLike | None = None,
     cutoff_ratio: ArrayLike | None = None,
     fluid: gas.Mixture | None = None,
     gamma: ArrayLike = GAMMA_AIR,
@@ -674,7 +700,7 @@ def diesel_cycle(
         Pressure at BDC before compression [Pa].
     compression_ratio : array_like
         r = v1/v2 [-], > 1.
-    heat_input : array_like, optional
+    cycle_heat_input : array_like, optional
         Heat added per unit mass of charge [J/kg], >= 0.  Give this or ``cutoff_ratio``.
     cutoff_ratio : array_like, optional
         rc = v3/v2 [-], >= 1.
@@ -688,13 +714,13 @@ def diesel_cycle(
     Returns
     -------
     ReciprocatingCycle
-        Corners 2 and 3a coincide (alpha = 1).  Given ``heat_input``, ``cutoff_ratio`` is
+        Corners 2 and 3a coincide (alpha = 1).  Given ``cycle_heat_input``, ``cutoff_ratio`` is
         the estimate rc = T3/T2 of the heat added at constant pressure.
 
     Raises
     ------
     ModelInputError
-        Neither or both of ``heat_input`` and ``cutoff_ratio``; ``fluid`` not a Mixture.
+        Neither or both of ``cycle_heat_input`` and ``cutoff_ratio``; ``fluid`` not a Mixture.
 
     Notes
     -----
@@ -712,16 +738,32 @@ def diesel_cycle(
     >>> round(float(c.efficiency), 4), round(float(c.peak_pressure / 1e5), 1)
     (0.6316, 57.2)
     """
-    which = _one_of("diesel_cycle", heat_input=heat_input, cutoff_ratio=cutoff_ratio)
-    if which == "heat_input":
-        assert heat_input is not None
-        return _cycle(T1, p1, compression_ratio, mode="heat", kind="diesel",
-                      heat_input=heat_input, fluid=fluid, gamma=gamma,
-                      gas_constant=gas_constant)  # fmt: skip
+    which = _one_of("diesel_cycle", cycle_heat_input=cycle_heat_input, cutoff_ratio=cutoff_ratio)
+    if which == "cycle_heat_input":
+        assert cycle_heat_input is not None
+        return _cycle(
+            T1,
+            p1,
+            compression_ratio,
+            mode="heat",
+            kind="diesel",
+            cycle_heat_input=cycle_heat_input,
+            fluid=fluid,
+            gamma=gamma,
+            gas_constant=gas_constant,
+        )
     assert cutoff_ratio is not None
-    return _cycle(T1, p1, compression_ratio, mode="ratios", kind="diesel",
-                  cutoff_ratio=cutoff_ratio, fluid=fluid, gamma=gamma,
-                  gas_constant=gas_constant)  # fmt: skip
+    return _cycle(
+        T1,
+        p1,
+        compression_ratio,
+        mode="ratios",
+        kind="diesel",
+        cutoff_ratio=cutoff_ratio,
+        fluid=fluid,
+        gamma=gamma,
+        gas_constant=gas_constant,
+    )
 
 
 def dual_cycle(
@@ -729,9 +771,9 @@ def dual_cycle(
     p1: ArrayLike,
     compression_ratio: ArrayLike,
     *,
-    heat_input: ArrayLike | None = None,
-    peak_pressure: ArrayLike | None = None,
-    pressure_ratio: ArrayLike | None = None,
+    cycle_heat_input: ArrayLike | None = None,
+    peak_cylinder_pressure: ArrayLike | None = None,
+    peak_pressure_ratio: ArrayLike | None = None,
     cutoff_ratio: ArrayLike | None = None,
     fluid: gas.Mixture | None = None,
     gamma: ArrayLike = GAMMA_AIR,
@@ -747,12 +789,12 @@ def dual_cycle(
         Pressure at BDC before compression [Pa].
     compression_ratio : array_like
         r = v1/v2 [-], > 1.
-    heat_input : array_like, optional
-        Heat added per unit mass of charge [J/kg], >= 0; give it with ``peak_pressure``.
-    peak_pressure : array_like, optional
+    cycle_heat_input : array_like, optional
+        Heat added per unit mass of charge [J/kg], >= 0; give it with ``peak_cylinder_pressure``.
+    peak_cylinder_pressure : array_like, optional
         Measured peak cylinder (firing) pressure [Pa], > 0; the constant-volume heat addition
         stops there.
-    pressure_ratio : array_like, optional
+    peak_pressure_ratio : array_like, optional
         alpha = p3a/p2 [-], >= 1; give it with ``cutoff_ratio`` (instead of the heat form).
     cutoff_ratio : array_like, optional
         rc = v3b/v3a [-], >= 1.
@@ -766,14 +808,14 @@ def dual_cycle(
     Returns
     -------
     ReciprocatingCycle
-        In the heat form, ``pressure_ratio`` is p_peak/p2 and ``cutoff_ratio`` the estimate
+        In the heat form, ``peak_pressure_ratio`` is p_peak/p2 and ``cutoff_ratio`` the estimate
         from the heat left for the constant-pressure part.
 
     Raises
     ------
     ModelInputError
-        Not exactly one of the forms (heat_input + peak_pressure, pressure_ratio +
-        cutoff_ratio); ``fluid`` not a Mixture.
+        Not exactly one of the forms (cycle_heat_input + peak_cylinder_pressure,
+        peak_pressure_ratio + cutoff_ratio); ``fluid`` not a Mixture.
 
     Notes
     -----
@@ -790,25 +832,44 @@ def dual_cycle(
 
     Examples
     --------
-    >>> c = dual_cycle(330.0, 3.0e5, 15.0, pressure_ratio=1.5, cutoff_ratio=1.6)
+    >>> c = dual_cycle(330.0, 3.0e5, 15.0, peak_pressure_ratio=1.5, cutoff_ratio=1.6)
     >>> round(float(c.efficiency), 4), round(float(c.peak_pressure / 1e5), 1)
     (0.6353, 199.4)
     """
-    heat_form = heat_input is not None or peak_pressure is not None
-    ratio_form = pressure_ratio is not None or cutoff_ratio is not None
-    if heat_form == ratio_form or (heat_form and (heat_input is None or peak_pressure is None)):
+    heat_form = cycle_heat_input is not None or peak_cylinder_pressure is not None
+    ratio_form = peak_pressure_ratio is not None or cutoff_ratio is not None
+    if heat_form == ratio_form or (
+        heat_form and (cycle_heat_input is None or peak_cylinder_pressure is None)
+    ):
         raise ModelInputError(
-            "dual_cycle", "arguments", "heat_input with peak_pressure, or pressure_ratio with "
+            "dual_cycle",
+            "arguments",
+            "cycle_heat_input with peak_cylinder_pressure, or peak_pressure_ratio with "
             "cutoff_ratio",
-        )  # fmt: skip
+        )
     if heat_form:
-        assert heat_input is not None and peak_pressure is not None
-        return _cycle(T1, p1, compression_ratio, mode="heat", kind="dual", heat_input=heat_input,
-                      peak_pressure=peak_pressure, fluid=fluid, gamma=gamma,
-                      gas_constant=gas_constant)  # fmt: skip
+        assert cycle_heat_input is not None and peak_cylinder_pressure is not None
+        return _cycle(
+            T1,
+            p1,
+            compression_ratio,
+            mode="heat",
+            kind="dual",
+            cycle_heat_input=cycle_heat_input,
+            peak_cylinder_pressure=peak_cylinder_pressure,
+            fluid=fluid,
+            gamma=gamma,
+            gas_constant=gas_constant,
+        )
     return _cycle(
-        T1, p1, compression_ratio, mode="ratios", kind="dual",
-        pressure_ratio=1.0 if pressure_ratio is None else pressure_ratio,
+        T1,
+        p1,
+        compression_ratio,
+        mode="ratios",
+        kind="dual",
+        peak_pressure_ratio=1.0 if peak_pressure_ratio is None else peak_pressure_ratio,
         cutoff_ratio=1.0 if cutoff_ratio is None else cutoff_ratio,
-        fluid=fluid, gamma=gamma, gas_constant=gas_constant,
-    )  # fmt: skip
+        fluid=fluid,
+        gamma=gamma,
+        gas_constant=gas_constant,
+    )
