@@ -50,57 +50,51 @@ def _errors(status: np.ndarray) -> np.ndarray:
     return status & ~np.uint32(WARNING_REASONS)
 
 
-def _gas_engine(n: int = 16, seed: int = 7, **kw: Any) -> tuple[dict[str, np.ndarray], dict]:
+# per engine: health ranges (eta_b, lambda, eta_v, eta_c), power range, other inputs
+_ENGINES: dict[str, dict[str, Any]] = {
+    "KR-GE1": {"health": ((0.40, 0.46), (1.7, 2.1), (0.88, 0.98), (0.74, 0.82)),
+               "power": (2.5e6, 4.4e6), "T0": (263.0, 313.0),
+               "fixed": {"premixed": True, "exhaust_stack_temperature": 393.15}},
+    "KR-DG1": {"health": ((0.38, 0.43), (1.8, 2.4), (0.90, 1.0), (0.72, 0.80)),
+               "power": (1.0e6, 2.0e6), "T0": (263.0, 318.0),
+               "fixed": {"generator_efficiency": 0.96}},
+}  # fmt: skip
+_HEALTH = ("brake_thermal_efficiency", "excess_air_ratio", "volumetric_efficiency",
+           "turbocharger_compressor_isentropic_efficiency")  # fmt: skip
+
+
+def _simulate(unit: str, n: int, seed: int) -> tuple[dict[str, np.ndarray], dict]:
+    spec = _ENGINES[unit]
     rng = np.random.default_rng(seed)
-    truth = {
-        "brake_thermal_efficiency": rng.uniform(0.40, 0.46, n),
-        "excess_air_ratio": rng.uniform(1.7, 2.1, n),
-        "volumetric_efficiency": rng.uniform(0.88, 0.98, n),
-        "turbocharger_compressor_isentropic_efficiency": rng.uniform(0.74, 0.82, n),
-    }
+    truth = {k: rng.uniform(lo, hi, n) for k, (lo, hi) in zip(_HEALTH, spec["health"], strict=True)}
     sensors, st = simulate_engine(
-        KR_GE1,
-        NG,
-        ambient_temperature=rng.uniform(263.0, 313.0, n),
-        ambient_pressure=rng.uniform(95.0e3, 102.0e3, n),
+        KR_GE1 if unit == "KR-GE1" else KR_DG1,
+        NG if unit == "KR-GE1" else GAS_OIL,
+        ambient_temperature=rng.uniform(*spec["T0"], n),
+        ambient_pressure=rng.uniform(94.0e3, 102.0e3, n),
         ambient_relative_humidity=rng.uniform(0.1, 0.9, n),
-        generator_power=rng.uniform(2.5e6, 4.4e6, n),
+        generator_power=rng.uniform(*spec["power"], n),
         engine_speed=np.full(n, 1500 * RPM),
         charge_air_temperature=rng.uniform(313.0, 323.0, n),
-        premixed=True,
-        exhaust_stack_temperature=np.full(n, 393.15),
-        **LOSSES,
-        **truth,
-        **kw,
-    )
+        charge_air_coolant_temperature=rng.uniform(290.0, 310.0, n),
+        **LOSSES, **truth, **spec["fixed"],
+    )  # fmt: skip
     assert not _errors(st).any()
     return sensors, truth
+
+
+def _gas_engine(n: int = 16, seed: int = 7) -> tuple[dict[str, np.ndarray], dict]:
+    return _simulate("KR-GE1", n, seed)
 
 
 def _diesel(n: int = 12, seed: int = 3) -> tuple[dict[str, np.ndarray], dict]:
-    rng = np.random.default_rng(seed)
-    truth = {
-        "brake_thermal_efficiency": rng.uniform(0.38, 0.43, n),
-        "excess_air_ratio": rng.uniform(1.8, 2.4, n),
-        "volumetric_efficiency": rng.uniform(0.90, 1.0, n),
-        "turbocharger_compressor_isentropic_efficiency": rng.uniform(0.72, 0.80, n),
-    }
-    sensors, st = simulate_engine(
-        KR_DG1,
-        GAS_OIL,
-        ambient_temperature=rng.uniform(263.0, 318.0, n),
-        ambient_pressure=rng.uniform(94.0e3, 102.0e3, n),
-        ambient_relative_humidity=rng.uniform(0.1, 0.9, n),
-        generator_power=rng.uniform(1.0e6, 2.0e6, n),
-        engine_speed=np.full(n, 1500 * RPM),
-        charge_air_temperature=np.full(n, 318.0),
-        generator_efficiency=0.96,
-        charge_air_coolant_temperature=rng.uniform(290.0, 310.0, n),
-        **LOSSES,
-        **truth,
-    )
-    assert not _errors(st).any()
-    return sensors, truth
+    return _simulate("KR-DG1", n, seed)
+
+
+def _diesel_iso3046(meas: dict, **kw: Any) -> Any:
+    return reconstruct_engine(meas, KR_DG1, GAS_OIL, cycle="diesel", generator_efficiency=0.96,
+                              correction="iso3046", iso3046_exponents=ISO3046_EXPONENTS[
+                                  "ci_turbocharged_charge_air_cooled"], **kw)  # fmt: skip
 
 
 def _measured(sensors: dict[str, np.ndarray], drop: tuple[str, ...] = ()) -> dict:
@@ -172,16 +166,7 @@ def test_measured_air_flow_agrees_with_oxygen() -> None:
 def test_diesel_round_trip_with_peak_pressure_and_iso3046() -> None:
     sensors, truth = _diesel()
     meas = _measured(sensors, drop=("air_mass_flow",))
-    out = reconstruct_engine(
-        meas,
-        KR_DG1,
-        GAS_OIL,
-        cycle="diesel",
-        generator_efficiency=0.96,
-        correction="iso3046",
-        iso3046_exponents=ISO3046_EXPONENTS["ci_turbocharged_charge_air_cooled"],
-        mechanical_efficiency=0.88,
-    )
+    out = _diesel_iso3046(meas, mechanical_efficiency=0.88)
     assert not _errors(out.status).any()
     v = out.values
     np.testing.assert_allclose(
@@ -227,15 +212,7 @@ def test_iso3046_correction_is_identity_at_reference_conditions() -> None:
         ambient_relative_humidity=np.full(4, 0.30),
         charge_air_coolant_temperature=np.full(4, 298.0),
     )
-    out = reconstruct_engine(
-        meas,
-        KR_DG1,
-        GAS_OIL,
-        cycle="diesel",
-        generator_efficiency=0.96,
-        correction="iso3046",
-        iso3046_exponents=ISO3046_EXPONENTS["ci_turbocharged_charge_air_cooled"],
-    )
+    out = _diesel_iso3046(meas)
     v = out.values
     np.testing.assert_allclose(v["corrected_brake_power"], v["brake_power"], rtol=1e-12)
     np.testing.assert_allclose(
@@ -245,15 +222,7 @@ def test_iso3046_correction_is_identity_at_reference_conditions() -> None:
     )
     # a hot site: the corrected (reference) power is above the measured one
     meas["ambient_temperature"] = np.full(4, 313.0)
-    hot = reconstruct_engine(
-        meas,
-        KR_DG1,
-        GAS_OIL,
-        cycle="diesel",
-        generator_efficiency=0.96,
-        correction="iso3046",
-        iso3046_exponents=ISO3046_EXPONENTS["ci_turbocharged_charge_air_cooled"],
-    )
+    hot = _diesel_iso3046(meas)
     assert np.all(hot.values["corrected_brake_power"] > hot.values["brake_power"])
 
 
@@ -309,23 +278,14 @@ def test_trade_ranges_at_rated_load() -> None:
     # Common practice: large lean-burn gas engines 40-49 % brake efficiency, BMEP 15-25 bar,
     # 9-12 % dry O2 (lambda 1.8-2.1), 380-480 degC after the turbocharger, CHP 80-92 % (LHV);
     # large high-speed Diesel gensets 195-225 g/kWh at rated load.
+    rated = {"ambient_temperature": 298.0, "ambient_pressure": 100.0e3,
+             "ambient_relative_humidity": 0.3, "engine_speed": 1500 * RPM,
+             "charge_air_temperature": 318.0, **LOSSES}  # fmt: skip
     s, _ = simulate_engine(
-        KR_GE1,
-        NG,
-        ambient_temperature=298.0,
-        ambient_pressure=100.0e3,
-        ambient_relative_humidity=0.3,
-        generator_power=4.4e6,
-        engine_speed=1500 * RPM,
-        brake_thermal_efficiency=0.445,
-        excess_air_ratio=1.9,
-        volumetric_efficiency=0.93,
-        charge_air_temperature=318.0,
-        turbocharger_compressor_isentropic_efficiency=0.78,
-        premixed=True,
-        exhaust_stack_temperature=393.15,
-        **LOSSES,
-    )
+        KR_GE1, NG, generator_power=4.4e6, brake_thermal_efficiency=0.445, excess_air_ratio=1.9,
+        volumetric_efficiency=0.93, turbocharger_compressor_isentropic_efficiency=0.78,
+        premixed=True, exhaust_stack_temperature=393.15, **rated,
+    )  # fmt: skip
     v = reconstruct_engine(_measured(s), KR_GE1, NG, cycle="otto", premixed=True).values
     assert 0.40 <= v["brake_thermal_efficiency"] <= 0.49
     assert 15e5 <= v["brake_mean_effective_pressure"] <= 25e5
@@ -334,21 +294,10 @@ def test_trade_ranges_at_rated_load() -> None:
     assert 0.80 <= v["chp_total_efficiency"] <= 0.92
     assert 2.5e5 <= s["charge_air_pressure"] <= 4.5e5  # boost of lean-burn engines at 20 bar
     d, _ = simulate_engine(
-        KR_DG1,
-        GAS_OIL,
-        ambient_temperature=298.0,
-        ambient_pressure=100.0e3,
-        ambient_relative_humidity=0.3,
-        generator_power=2.0e6,
-        engine_speed=1500 * RPM,
-        brake_thermal_efficiency=0.41,
-        excess_air_ratio=2.1,
-        volumetric_efficiency=0.95,
-        charge_air_temperature=318.0,
-        turbocharger_compressor_isentropic_efficiency=0.76,
-        generator_efficiency=0.96,
-        **LOSSES,
-    )
+        KR_DG1, GAS_OIL, generator_power=2.0e6, brake_thermal_efficiency=0.41,
+        excess_air_ratio=2.1, volumetric_efficiency=0.95,
+        turbocharger_compressor_isentropic_efficiency=0.76, generator_efficiency=0.96, **rated,
+    )  # fmt: skip
     dv = reconstruct_engine(
         _measured(d), KR_DG1, GAS_OIL, cycle="diesel", generator_efficiency=0.96
     ).values

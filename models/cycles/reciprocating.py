@@ -462,28 +462,36 @@ def _props(
     return _Variable(fluid), fluid.shape, np.asarray(2.0), fluid.R
 
 
+@dataclass(frozen=True)
+class _Fluid:
+    """The property model asked for: a mixture, or constant gamma and R."""
+
+    fluid: gas.Mixture | None
+    gamma: ArrayLike
+    gas_constant: ArrayLike
+
+
 def _cycle(
+    kind: Literal["otto", "diesel", "dual"],
     T1: ArrayLike,
     p1: ArrayLike,
     compression_ratio: ArrayLike,
+    how: _Fluid,
     *,
-    mode: Literal["ratios", "heat"],
-    kind: Literal["otto", "diesel", "dual"],
-    peak_pressure_ratio: ArrayLike = 1.0,
-    cutoff_ratio: ArrayLike = 1.0,
-    cycle_heat_input: ArrayLike = 0.0,
-    peak_cylinder_pressure: ArrayLike = np.inf,
-    fluid: gas.Mixture | None,
-    gamma: ArrayLike,
-    gas_constant: ArrayLike,
+    peak_pressure_ratio: ArrayLike | None = None,
+    cutoff_ratio: ArrayLike | None = None,
+    cycle_heat_input: ArrayLike | None = None,
+    peak_cylinder_pressure: ArrayLike | None = None,
 ) -> ReciprocatingCycle:
-    props, pshape, g, R = _props(fluid, gamma, gas_constant)
+    mode = "ratios" if cycle_heat_input is None else "heat"
+    fluid = how.fluid
+    props, pshape, g, R = _props(fluid, how.gamma, how.gas_constant)
     T1a, p1a, r = _f(T1), _f(p1), _f(compression_ratio)
     al, rc, q, pmax = (
-        _f(peak_pressure_ratio),
-        _f(cutoff_ratio),
-        _f(cycle_heat_input),
-        _f(peak_cylinder_pressure),
+        _f(1.0 if peak_pressure_ratio is None else peak_pressure_ratio),
+        _f(1.0 if cutoff_ratio is None else cutoff_ratio),
+        _f(0.0 if cycle_heat_input is None else cycle_heat_input),
+        _f(np.inf if peak_cylinder_pressure is None else peak_cylinder_pressure),
     )
     shape = np.broadcast_shapes(
         T1a.shape, p1a.shape, r.shape, al.shape, rc.shape, q.shape, pmax.shape, pshape
@@ -577,12 +585,11 @@ def _cycle(
     )
 
 
-def _one_of(who: str, **given: ArrayLike | None) -> str:
+def _one_of(who: str, **given: ArrayLike | None) -> None:
     named = [k for k, v in given.items() if v is not None]
     if len(named) != 1:
         keys = " or ".join(given)
         raise ModelInputError(who, named or None, f"exactly one of {keys}")
-    return named[0]
 
 
 def otto_cycle(
@@ -649,33 +656,18 @@ def otto_cycle(
     >>> round(float(c.efficiency), 4), round(float(c.peak_temperature))
     (0.6019, 3262)
     """
-    which = _one_of(
+    _one_of(
         "otto_cycle", cycle_heat_input=cycle_heat_input, peak_pressure_ratio=peak_pressure_ratio
     )
-    if which == "cycle_heat_input":
-        assert cycle_heat_input is not None
-        return _cycle(
-            T1,
-            p1,
-            compression_ratio,
-            mode="heat",
-            kind="otto",
-            cycle_heat_input=cycle_heat_input,
-            fluid=fluid,
-            gamma=gamma,
-            gas_constant=gas_constant,
-        )
-    assert peak_pressure_ratio is not None
+    how = _Fluid(fluid, gamma, gas_constant)
     return _cycle(
+        "otto",
         T1,
         p1,
         compression_ratio,
-        mode="ratios",
-        kind="otto",
+        how,
+        cycle_heat_input=cycle_heat_input,
         peak_pressure_ratio=peak_pressure_ratio,
-        fluid=fluid,
-        gamma=gamma,
-        gas_constant=gas_constant,
     )
 
 
@@ -738,31 +730,16 @@ def diesel_cycle(
     >>> round(float(c.efficiency), 4), round(float(c.peak_pressure / 1e5), 1)
     (0.6316, 57.2)
     """
-    which = _one_of("diesel_cycle", cycle_heat_input=cycle_heat_input, cutoff_ratio=cutoff_ratio)
-    if which == "cycle_heat_input":
-        assert cycle_heat_input is not None
-        return _cycle(
-            T1,
-            p1,
-            compression_ratio,
-            mode="heat",
-            kind="diesel",
-            cycle_heat_input=cycle_heat_input,
-            fluid=fluid,
-            gamma=gamma,
-            gas_constant=gas_constant,
-        )
-    assert cutoff_ratio is not None
+    _one_of("diesel_cycle", cycle_heat_input=cycle_heat_input, cutoff_ratio=cutoff_ratio)
+    how = _Fluid(fluid, gamma, gas_constant)
     return _cycle(
+        "diesel",
         T1,
         p1,
         compression_ratio,
-        mode="ratios",
-        kind="diesel",
+        how,
+        cycle_heat_input=cycle_heat_input,
         cutoff_ratio=cutoff_ratio,
-        fluid=fluid,
-        gamma=gamma,
-        gas_constant=gas_constant,
     )
 
 
@@ -847,29 +824,15 @@ def dual_cycle(
             "cycle_heat_input with peak_cylinder_pressure, or peak_pressure_ratio with "
             "cutoff_ratio",
         )
-    if heat_form:
-        assert cycle_heat_input is not None and peak_cylinder_pressure is not None
-        return _cycle(
-            T1,
-            p1,
-            compression_ratio,
-            mode="heat",
-            kind="dual",
-            cycle_heat_input=cycle_heat_input,
-            peak_cylinder_pressure=peak_cylinder_pressure,
-            fluid=fluid,
-            gamma=gamma,
-            gas_constant=gas_constant,
-        )
+    how = _Fluid(fluid, gamma, gas_constant)
     return _cycle(
+        "dual",
         T1,
         p1,
         compression_ratio,
-        mode="ratios",
-        kind="dual",
-        peak_pressure_ratio=1.0 if peak_pressure_ratio is None else peak_pressure_ratio,
-        cutoff_ratio=1.0 if cutoff_ratio is None else cutoff_ratio,
-        fluid=fluid,
-        gamma=gamma,
-        gas_constant=gas_constant,
+        how,
+        cycle_heat_input=cycle_heat_input,
+        peak_cylinder_pressure=peak_cylinder_pressure,
+        peak_pressure_ratio=peak_pressure_ratio,
+        cutoff_ratio=cutoff_ratio,
     )
