@@ -411,6 +411,34 @@ def reconstruct_engine(
     q_in = eta_comb m_f LHV / m_ch; air standard with gamma = 1.4 and R of dry air, the
     ``ideal_cycle_efficiency`` with the charge's temperature-dependent properties.  The
     relative efficiency is brake over ideal (no indicated power is measured).
+
+    References
+    ----------
+    Heywood (2018) [1]_; ISO 3046-1:2002 [2]_; the method in docs/method-engines.md.
+
+    Examples
+    --------
+    The invented Kestrel Ridge block KR-GE1 at rated load: the forward model makes the
+    sensors, the reconstruction gives the health back (air flow from the exhaust O2):
+
+    >>> import math
+    >>> from models.components.reciprocating import EngineGeometry
+    >>> from models.fuel import gas_fuel
+    >>> kr_ge1 = EngineGeometry(0.21, 0.24, 0.48, 20, 12.5)
+    >>> ng = gas_fuel({"CH4": 0.93, "C2H6": 0.04, "C3H8": 0.01, "N2": 0.01, "CO2": 0.01})
+    >>> s, _ = simulate_engine(
+    ...     kr_ge1, ng, ambient_temperature=288.15, ambient_pressure=101.3e3,
+    ...     ambient_relative_humidity=0.6, generator_power=4.4e6,
+    ...     engine_speed=1500 * 2 * math.pi / 60, brake_thermal_efficiency=0.445,
+    ...     excess_air_ratio=1.9, volumetric_efficiency=0.93, charge_air_temperature=318.0,
+    ...     turbocharger_compressor_isentropic_efficiency=0.78, premixed=True)
+    >>> round(float(s["exhaust_oxygen"]), 4), round(float(s["charge_air_pressure"]) / 1e5, 2)
+    (0.1048, 3.33)
+    >>> del s["air_mass_flow"]
+    >>> r = reconstruct_engine(s, kr_ge1, ng, cycle="otto", premixed=True)
+    >>> [round(float(r.values[k]), 4) for k in ("brake_thermal_efficiency", "excess_air_ratio",
+    ...  "volumetric_efficiency", "ideal_cycle_efficiency", "relative_efficiency")]
+    [0.445, 1.9, 0.93, 0.5427, 0.82]
     """
     missing = [k for k in MEASUREMENTS_REQUIRED if k not in measurements]
     if missing:
