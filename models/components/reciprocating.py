@@ -252,16 +252,17 @@ class EngineGeometry:
         """n_R: crank revolutions per working cycle [-] (2 for four-stroke, 1 for two)."""
         return self.strokes_per_cycle // 2
 
-    def cycles_per_second(self, speed: ArrayLike) -> FloatArray:
-        """Working cycles per second of one cylinder, n / n_R [1/s] (eq. 2); speed [rad/s]."""
+    def cycles_per_second(self, engine_speed: ArrayLike) -> FloatArray:
+        """Working cycles per second of one cylinder, n / n_R [1/s] (eq. 2), at ``engine_speed``
+        [rad/s]."""
         return np.asarray(
-            np.asarray(speed, dtype=np.float64) / (2 * math.pi) / self.revolutions_per_cycle,
+            np.asarray(engine_speed, dtype=np.float64) / (2 * math.pi) / self.revolutions_per_cycle,
             dtype=np.float64,
         )
 
-    def mean_piston_speed(self, speed: ArrayLike) -> FloatArray:
-        """Mean piston speed c_m = 2 S n [m/s] (eq. 3) at engine speed ``speed`` [rad/s]."""
-        n = np.asarray(speed, dtype=np.float64) / (2 * math.pi)
+    def mean_piston_speed(self, engine_speed: ArrayLike) -> FloatArray:
+        """Mean piston speed c_m = 2 S n [m/s] (eq. 3) at ``engine_speed`` [rad/s]."""
+        n = np.asarray(engine_speed, dtype=np.float64) / (2 * math.pi)
         return np.asarray(2.0 * self.stroke * n, dtype=np.float64)
 
     def piston_position(self, crank_angle: ArrayLike) -> FloatArray:
@@ -313,7 +314,7 @@ def brake_performance(
     geometry: EngineGeometry,
     generator_power: ArrayLike,
     fuel_mass_flow: ArrayLike,
-    speed: ArrayLike,
+    engine_speed: ArrayLike,
     lower_heating_value: ArrayLike,
     *,
     generator_efficiency: ArrayLike = 1.0,
@@ -329,7 +330,7 @@ def brake_performance(
         ``generator_efficiency=1`` when it is measured by torque).
     fuel_mass_flow : array_like
         m_f [kg/s], > 0.
-    speed : array_like
+    engine_speed : array_like
         Engine speed omega [rad/s], > 0.
     lower_heating_value : array_like
         LHV of the fuel [J/kg], > 0.
@@ -374,7 +375,7 @@ def brake_performance(
     (Pg, mf, w, lhv), status = _inputs(
         (generator_power, "pos"),
         (fuel_mass_flow, "pos"),
-        (speed, "pos"),
+        (engine_speed, "pos"),
         (lower_heating_value, "pos"),
     )
     Pb, st = machine.shaft_power(Pg, generator_efficiency, mechanical_loss)
@@ -663,7 +664,7 @@ def charge_density(
 def volumetric_efficiency(
     geometry: EngineGeometry,
     charge_mass_flow: ArrayLike,
-    speed: ArrayLike,
+    engine_speed: ArrayLike,
     receiver_temperature: ArrayLike,
     receiver_pressure: ArrayLike,
     *,
@@ -676,8 +677,8 @@ def volumetric_efficiency(
     geometry : EngineGeometry
     charge_mass_flow : array_like
         Mass flow inducted [kg/s]: air, or air and fuel for a premixed gas engine.
-    speed : array_like
-        Engine speed [rad/s], > 0.
+    engine_speed : array_like
+        Engine speed omega [rad/s], > 0.
     receiver_temperature, receiver_pressure : array_like
         Charge-air temperature [K] and pressure [Pa] after the intercooler.
     fluid : models.gas.Mixture, optional
@@ -701,7 +702,7 @@ def volumetric_efficiency(
     density is that of the inlet manifold) [1]_.
     """
     rho, status = charge_density(receiver_temperature, receiver_pressure, fluid)
-    (m, w), st = _inputs((charge_mass_flow, "pos"), (speed, "pos"), shape=rho.shape)
+    (m, w), st = _inputs((charge_mass_flow, "pos"), (engine_speed, "pos"), shape=rho.shape)
     status = np.asarray(status | st, dtype=np.uint32)
     eta = m / (
         np.where(np.isnan(rho), 1.0, rho) * geometry.displacement * geometry.cycles_per_second(w)

@@ -88,7 +88,7 @@ StatusArray = NDArray[np.uint32]
 CORNERS: tuple[str, ...] = ("1", "2", "3a", "3b", "4")
 #: Ratio of specific heats of the cold-air standard [-].
 GAMMA_AIR: float = 1.4
-#: Specific gas constant of :data:`models.gas.DRY_AIR` [J/(kg K)] (287.05).
+#: Specific gas constant of :data:`models.gas.DRY_AIR` [J/(kg K)] (287.04).
 R_DRY_AIR: float = float(gas.R_UNIVERSAL / (gas.DRY_AIR @ gas.MOLAR_MASS))
 
 _MAX_ITER = 25
