@@ -80,6 +80,7 @@ class Reason(IntFlag):
     HUMIDITY_SATURATED = 1 << 16  # water partial pressure capped at saturation
     INPUT_STUCK = 1 << 17  # set by the daemon: a sensor's value has not moved for too long
     INPUT_DISAGREE = 1 << 18  # set by the daemon: redundant sensors differ beyond max_spread
+    PEAK_PRESSURE_CLIPPED = 1 << 19  # ideal dual cycle: measured peak pressure unusable as given
 
 
 #: Reasons that are warnings: the number is computed but deserves a look.
@@ -89,6 +90,7 @@ WARNING_REASONS = (
     | Reason.NOT_STEADY
     | Reason.CORRECTION_UNAVAILABLE
     | Reason.HUMIDITY_SATURATED
+    | Reason.PEAK_PRESSURE_CLIPPED
 )
 
 

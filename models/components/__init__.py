@@ -1,0 +1,1 @@
+"""Machine components: one module per component or machine part."""

@@ -1,0 +1,1 @@
+"""Ideal comparison cycles (air-standard and variable-property)."""
