@@ -65,6 +65,18 @@ FloatArray = NDArray[np.float64]
 SECRET_KEYS = frozenset(
     {"password", "passwd", "pass", "token", "api_token", "read_token", "secret", "api_key"}
 )
+#: Why a time window has its upper bound (appended to the fix of a value above it): an absurd
+#: window lets timestamps through that no row can hold, or breaks the protocol.
+WINDOW_LIMITS: dict[str, str] = {
+    "future_tolerance_s": "a source clock more than a day ahead is a clock fault, not data",
+    "past_tolerance_s": "10 years; older source times are quarantined as past_timestamp",
+    "tick_s": "one day at most",
+    "max_age_s": "366 days at most",
+    "stuck_after_s": "366 days at most",
+    "retention_days": "100 years at most",
+    "session_expiry_s": "MQTT 5 session expiry is a 4-byte integer; 4294967295 = never",
+    "keepalive_s": "MQTT keep alive is a 2-byte integer of seconds",
+}
 #: Unit names become MQTT topic levels, SQL keys and metric labels: keep them plain.
 UNIT_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 #: Default barometric reference of gauge-pressure tags.
@@ -138,8 +150,8 @@ class BrokerConfig(_Section):
     password_file: str = ""
     client_id: str = Field(default="brayscope", min_length=1, max_length=128)
     qos: int = Field(default=1, ge=0, le=2)
-    keepalive_s: float = Field(default=30.0, gt=0.0)
-    session_expiry_s: int = Field(default=86400, ge=0)
+    keepalive_s: float = Field(default=30.0, gt=0.0, le=65535.0)
+    session_expiry_s: int = Field(default=86400, ge=0, le=4294967295)
     queue_size: int = Field(default=10000, gt=0)
 
     _password: SecretStr | None = PrivateAttr(default=None)
@@ -158,9 +170,9 @@ class DatabaseConfig(_Section):
     """
 
     url: str = Field(default="sqlite:///./brayscope-data/brayscope.sqlite", min_length=1)
-    retention_days: float = Field(default=400.0, gt=0.0)
-    readings_retention_days: float | None = Field(default=None, gt=0.0)
-    results_retention_days: float | None = Field(default=None, gt=0.0)
+    retention_days: float = Field(default=400.0, gt=0.0, le=36525.0)
+    readings_retention_days: float | None = Field(default=None, gt=0.0, le=36525.0)
+    results_retention_days: float | None = Field(default=None, gt=0.0, le=36525.0)
 
     def retention_by_table(self) -> dict[str, float]:
         """Days each table keeps its rows [d]: readings and results their own periods when
@@ -207,11 +219,11 @@ class HttpConfig(_Section):
 class DaemonConfig(_Section):
     """``[daemon]``: the live loop."""
 
-    tick_s: float = Field(default=10.0, gt=0.0)
+    tick_s: float = Field(default=10.0, gt=0.0, le=86400.0)
     results_topic_prefix: str = Field(default="brayscope", min_length=1)
     max_payload_bytes: int = Field(default=65536, gt=0)
-    future_tolerance_s: float = Field(default=300.0, ge=0.0)
-    past_tolerance_s: float = Field(default=86400.0, ge=0.0)
+    future_tolerance_s: float = Field(default=300.0, ge=0.0, le=86400.0)
+    past_tolerance_s: float = Field(default=86400.0, ge=0.0, le=315576000.0)
     steady_window: int = Field(default=30, ge=2)
     subscriptions: Literal["exact", "parent"] = "exact"
 
@@ -278,11 +290,11 @@ class TagConfig(_Section):
     uom: str
     low: float
     high: float
-    max_age_s: float = Field(default=60.0, gt=0.0)
+    max_age_s: float = Field(default=60.0, gt=0.0, le=31622400.0)
     baro_measurement: str | None = None
     baro_pa: float | None = Field(default=None, gt=0.0)
     max_spread: float | None = Field(default=None, gt=0.0)
-    stuck_after_s: float | None = Field(default=None, gt=0.0)
+    stuck_after_s: float | None = Field(default=None, gt=0.0, le=31622400.0)
     stuck_band: float = Field(default=0.0, ge=0.0)
     description: str = ""
 
@@ -1226,14 +1238,16 @@ def _fix(err: Any, model: type[BaseModel], loc: tuple[str | int, ...]) -> str:
     if kind == "missing":
         return f"add {loc[-1]} = ..." if loc else "add the key"
     if kind in ("greater_than", "greater_than_equal", "less_than", "less_than_equal"):
+        why = WINDOW_LIMITS.get(str(loc[-1])) if loc and kind.startswith("less") else None
         return (
             "give a number "
             + {
                 "greater_than": f"> {ctx.get('gt')}",
                 "greater_than_equal": f">= {ctx.get('ge')}",
                 "less_than": f"< {ctx.get('lt')}",
-                "less_than_equal": f"<= {ctx.get('le')}",
+                "less_than_equal": f"<= {_bound_text(ctx.get('le'))}",
             }[kind]
+            + (f" ({why})" if why else "")
         )
     if kind == "literal_error":
         return f"use one of {ctx.get('expected')}"
@@ -1252,6 +1266,13 @@ def _fix(err: Any, model: type[BaseModel], loc: tuple[str | int, ...]) -> str:
     if kind == "bool_type":
         return "write true or false"
     return "see docs/configuration.md"
+
+
+def _bound_text(bound: Any) -> str:
+    """A bound of a range error as written in a plant file (86400, not 86400.0)."""
+    if isinstance(bound, float) and bound.is_integer():
+        return str(int(bound))
+    return str(bound)
 
 
 def _did_you_mean(word: str, choices: Mapping[str, Any] | Any) -> str:

@@ -15,7 +15,10 @@ Tasks (one :class:`asyncio.TaskGroup`, all stopped together)::
     http       uvicorn serving daemon.http.create_app in this event loop
 
 Durability: a message is acknowledged to the broker only after its readings (and its
-quarantined items) are committed.  While the database is down, commits fail, nothing is
+quarantined items) are committed.  A commit refused for its data while the database answers
+(:func:`daemon.storage.refused_data` and a ping) raises :class:`daemon.types.UnstorableError`:
+the feed isolates the offending message and quarantines it as ``unstorable``; the database
+stays reported up.  While the database is down, commits fail, nothing is
 acknowledged, the broker keeps the messages in the persistent session and the feed reconnects
 to have them sent again; readiness turns false within ``db_probe_s`` seconds.  Result rows that
 cannot be written wait in a bounded in-memory buffer (:data:`MAX_PENDING_RESULTS`) and are
@@ -55,9 +58,9 @@ from daemon.feeds.decode import Batch, Decoder
 from daemon.feeds.mqtt import MqttFeed
 from daemon.metrics import Metrics
 from daemon.publish import ResultPublisher, result_topic
-from daemon.storage import ResultRow, Store, redact_url
+from daemon.storage import ResultRow, Store, redact_url, refused_data
 from daemon.storage import schema as db_schema
-from daemon.types import Reading
+from daemon.types import Reading, UnstorableError
 from models.status import WARNING_REASONS, reason_names
 
 __all__ = [
@@ -121,6 +124,14 @@ def result_row(
         air_mass_flow_source=r.labels.get("air_mass_flow_source"),
         correction_method=r.labels.get("correction_method"),
     )
+
+
+def _error_text(exc: BaseException) -> str:
+    """One line naming an error: its class and the first line of the driver's message."""
+    orig = getattr(exc, "orig", None)
+    cause = orig if isinstance(orig, BaseException) else exc
+    lines = str(cause).splitlines()
+    return f"{cause.__class__.__name__}: {lines[0] if lines else ''}"[:300]
 
 
 def _num(v: Any) -> float | None:
@@ -397,6 +408,11 @@ class Runtime:
         try:
             await asyncio.to_thread(self._write_batch, batch)
         except Exception as exc:
+            # refused data on a database that answers: the message, not the database, is the
+            # problem (the feed isolates and quarantines it); anything else is an outage
+            if refused_data(exc) and await asyncio.to_thread(self.store.ping):
+                self._set_db(True)
+                raise UnstorableError(_error_text(exc)) from exc
             self._set_db(False, f"commit failed: {exc.__class__.__name__}")
             raise
         self._set_db(True)

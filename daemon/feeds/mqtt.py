@@ -32,6 +32,14 @@ Overflow policy (inbound queue of ``broker.queue_size``):
 
 QoS 2 is refused at construction: paho answers PUBREC before the application sees the message,
 so it cannot be held back until the commit.
+
+A message the database cannot store (a *poison* message) never blocks a batch: when the commit
+raises :class:`daemon.types.UnstorableError` (the database answered but refused the data) the
+batch is split in halves, each half committed on its own, recursively, until the offending
+messages are single; each of those is committed instead as one quarantined item with reason
+``unstorable`` (its payload kept), and then the whole batch is acknowledged in arrival order.
+Any other commit error is treated as the database being unavailable (retry, then reconnect for
+redelivery; nothing acknowledged).
 """
 
 from __future__ import annotations
@@ -51,7 +59,8 @@ from paho.mqtt.packettypes import PacketTypes
 from paho.mqtt.properties import Properties
 from paho.mqtt.subscribeoptions import SubscribeOptions
 
-from daemon.feeds.decode import Batch, Decoder, SequenceTracker
+from daemon.feeds.decode import Batch, Decoder, DecodeResult, SequenceTracker
+from daemon.types import Quarantined, UnstorableError
 
 __all__ = [
     "BrokerLike",
@@ -242,7 +251,9 @@ class MqttFeed:
         Makes the batch's readings and quarantined items durable (the runtime passes the
         storage write).  The feed acknowledges the batch's messages only after it returns.
         It is retried ``commit_attempts`` times with backoff; then the feed reconnects so the
-        broker redelivers.
+        broker redelivers.  When it raises :class:`daemon.types.UnstorableError` the
+        offending messages are isolated and quarantined as ``unstorable`` (see the module
+        notes) instead.
     stats : FeedStats, optional
         Counters; :class:`MemoryFeedStats` when omitted.
     username, password : str, optional
@@ -665,11 +676,15 @@ class MqttFeed:
 
     async def _process(self, inner: paho.Client, msgs: list[_Inbound]) -> None:
         results = [self.decoder.decode(m.topic, m.payload, m.received_ts) for m in msgs]
-        batch = Batch.from_results(results, dups=sum(m.dup for m in msgs))
+        dups = sum(m.dup for m in msgs)
+        batch = Batch.from_results(results, dups=dups)
         t0 = time.perf_counter()
         for attempt in range(self.commit_attempts):
             try:
-                await self._commit(batch)
+                isolated = await self._commit_isolating(msgs, results, batch)
+                if isolated is not None:
+                    results = isolated
+                    batch = Batch.from_results(results, dups=dups)
                 break
             except asyncio.CancelledError:
                 raise
@@ -708,3 +723,53 @@ class MqttFeed:
             if missing:
                 self.stats.sequence_gap(self.decoder.unit_of(r.topic), missing)
         await self._out.put((batch, last_seq, len(msgs)))
+
+    async def _commit_isolating(
+        self, msgs: list[_Inbound], results: list[DecodeResult], batch: Batch
+    ) -> list[DecodeResult] | None:
+        """Commit ``batch``; None when it went in whole, else the results actually committed
+        (the messages the database refused replaced by their ``unstorable`` quarantine)."""
+        try:
+            await self._commit(batch)
+            return None
+        except UnstorableError as exc:
+            log.warning(
+                "the database refused the data of a batch of %d messages (%s): isolating "
+                "the message(s) it cannot store",
+                len(msgs),
+                exc,
+            )
+            return await self._isolate(msgs, results, exc)
+
+    async def _isolate(
+        self, msgs: list[_Inbound], results: list[DecodeResult], exc: UnstorableError
+    ) -> list[DecodeResult]:
+        """Bisect a refused part of a batch; quarantine every single message still refused."""
+        if len(results) == 1:
+            item = self._unstorable(msgs[0], results[0], exc)
+            await self._commit(Batch.from_results([item]))
+            log.warning(
+                "message on %r quarantined as unstorable: %s", msgs[0].topic[:200], str(exc)
+            )
+            return [item]
+        mid = len(results) // 2
+        out: list[DecodeResult] = []
+        for part_m, part_r in ((msgs[:mid], results[:mid]), (msgs[mid:], results[mid:])):
+            try:
+                await self._commit(Batch.from_results(part_r))
+                out.extend(part_r)
+            except UnstorableError as part_exc:
+                out.extend(await self._isolate(part_m, part_r, part_exc))
+        return out
+
+    def _unstorable(self, m: _Inbound, r: DecodeResult, exc: UnstorableError) -> DecodeResult:
+        """The whole message as one quarantined item (counted as one received item)."""
+        q = Quarantined(
+            received_ts=m.received_ts,
+            topic=m.topic,
+            payload=m.payload[: self.decoder.limits.quarantine_payload_limit],
+            reason="unstorable",
+            detail=f"the database refused this message: {exc}"[:500],
+            unit=self.decoder.unit_of(m.topic),
+        )
+        return DecodeResult(m.topic, 1, (), (q,), r.seq)

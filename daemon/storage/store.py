@@ -49,6 +49,8 @@ __all__ = [
     "UnitLike",
     "quarantine_key",
     "redact_url",
+    "refused_data",
+    "storable_datetime",
 ]
 
 #: Bytes of a rejected payload kept in the quarantine table.
@@ -525,7 +527,7 @@ class Store:
                 "detail": (q.detail or "")[:MAX_DETAIL_CHARS],
                 "unit": q.unit,
                 "measurement": getattr(q, "measurement", None),
-                "source_ts": _optional_ts(getattr(q, "source_ts", None)),
+                "source_ts": storable_datetime(getattr(q, "source_ts", None)),
                 "natural_key": quarantine_key(q),
             }
             for q in items
@@ -680,8 +682,49 @@ def _sqlite_busy(exc: sa.exc.OperationalError) -> bool:
     return "locked" in text or "busy" in text
 
 
-def _optional_ts(ts: float | datetime | None) -> datetime | None:
-    return None if ts is None else s.to_utc_datetime(ts)
+def storable_datetime(ts: float | datetime | None) -> datetime | None:
+    """``ts`` as an aware UTC datetime, or None when it has none: absent, not finite, or
+    outside the years 1..9999 that a Python ``datetime`` (and so a row) can hold.
+
+    A rejected input keeps its receive time; a source time that cannot be represented (a
+    poison timestamp such as ``1e300`` or year 10000 in UTC) is left out of the row instead
+    of making the whole write fail.
+    """
+    if ts is None:
+        return None
+    try:
+        return s.to_utc_datetime(ts)
+    except (ValueError, OverflowError, OSError):
+        return None
+
+
+#: SQLAlchemy errors that mean "these values were refused" rather than "the database is
+#: unreachable or broken": bad data (out of range, NUL in text ...) and constraint violations.
+_DATA_ERRORS: tuple[type[BaseException], ...] = (sa.exc.DataError, sa.exc.IntegrityError)
+#: Python errors raised while turning values into rows (an unrepresentable datetime ...).
+_VALUE_ERRORS: tuple[type[BaseException], ...] = (
+    ValueError,
+    OverflowError,
+    TypeError,
+    UnicodeError,
+)
+
+
+def refused_data(exc: BaseException) -> bool:
+    """True when a failed write was refused because of its *data* (the database itself may be
+    fine), False for everything that points at the database (connection lost, refused,
+    timed out, disk full, locked, missing table ...).
+
+    The caller still asks the database (:meth:`Store.ping`) before it treats a failure as
+    bad data: "refused data" on a database that does not answer is an outage.
+    """
+    if isinstance(exc, sa.exc.DBAPIError):
+        return isinstance(exc, _DATA_ERRORS) and not exc.connection_invalidated
+    if isinstance(exc, sa.exc.StatementError):  # a bind parameter failed to convert
+        return isinstance(exc.orig, _VALUE_ERRORS)
+    if isinstance(exc, sa.exc.SQLAlchemyError):
+        return False
+    return isinstance(exc, _VALUE_ERRORS)
 
 
 def _raw_text(raw: object) -> str | None:
