@@ -169,7 +169,8 @@ class Snapshot:
     quality : dict of str to int
         :class:`models.status.Reason` bits per measurement (``INPUT_STALE``,
         ``INPUT_BAD_QUALITY``, ``INPUT_MISSING``, ``INPUT_NONPHYSICAL``, ``INPUT_STUCK``,
-        ``INPUT_DISAGREE``); 0 when usable.
+        ``INPUT_DISAGREE``); 0 when usable, or the warning bit ``CLOCK_AHEAD`` alone (usable,
+        but the source clock of the held value was ahead of the receive clock).
     age_s : dict of str to float
         Age of the held value at ``ts`` [s]; NaN when no value was ever received.
     steady : bool or None
