@@ -4,12 +4,16 @@
 whose tags carry compiled unit converters (see :mod:`daemon.uom`).  Every problem found is
 reported at once, each as ``FILE: key.path: message — fix: what to write instead``.
 
-Secrets (the broker password, the API tokens) never live in the plant file: they come from the
-environment (``BRAYSCOPE_BROKER_PASSWORD``, ``BRAYSCOPE_API_TOKEN``, ``BRAYSCOPE_API_READ_TOKEN``),
-from files named by the ``*_FILE`` variables of the same names, or from files named in the plant
-file (``broker.password_file``, ``http.api_token_file``, ``http.read_token_file``).  A secret
-written inline is an error.  Non-secret overrides from the environment: ``BRAYSCOPE_DATABASE_URL``,
-``BRAYSCOPE_BROKER_HOST``, ``BRAYSCOPE_BROKER_PORT``, ``BRAYSCOPE_HTTP_BIND``.
+Secrets (the broker and database passwords, the API tokens) never live in the plant file: they
+come from the environment (``BRAYSCOPE_BROKER_PASSWORD``, ``BRAYSCOPE_DATABASE_PASSWORD``,
+``BRAYSCOPE_API_TOKEN``, ``BRAYSCOPE_API_READ_TOKEN``), from files named by the ``*_FILE``
+variables of the same names, or from files named in the plant file (``broker.password_file``,
+``database.password_file``, ``http.api_token_file``, ``http.read_token_file``).  A secret
+written inline is an error, and so is a URL carrying one (a password in its user part, or a
+query parameter such as ``password``, ``sslpassword``, ``token``; :func:`daemon.urls.url_secrets`),
+in the plant file or in the environment.  Non-secret overrides from the environment:
+``BRAYSCOPE_DATABASE_URL``, ``BRAYSCOPE_BROKER_HOST``, ``BRAYSCOPE_BROKER_PORT``,
+``BRAYSCOPE_HTTP_BIND``.
 
 Exception tree::
 
@@ -31,7 +35,6 @@ import tomllib
 from collections.abc import Iterator, Mapping
 from pathlib import Path
 from typing import Any, Literal, NamedTuple, overload
-from urllib.parse import urlsplit
 
 import numpy as np
 import pint
@@ -40,6 +43,7 @@ from pydantic import BaseModel, ConfigDict, Field, PrivateAttr, SecretStr, Valid
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
 from daemon.uom import Converter, UomError, compile_converter, get_registry, parse_uom
+from daemon.urls import url_secrets, urls_in
 from models.unit_types import FieldSpec, UnitType
 
 __all__ = [
@@ -173,6 +177,15 @@ class DatabaseConfig(_Section):
     retention_days: float = Field(default=400.0, gt=0.0, le=36525.0)
     readings_retention_days: float | None = Field(default=None, gt=0.0, le=36525.0)
     results_retention_days: float | None = Field(default=None, gt=0.0, le=36525.0)
+    password_file: str = ""
+
+    _password: SecretStr | None = PrivateAttr(default=None)
+
+    @property
+    def password(self) -> SecretStr | None:
+        """The database password (from the environment or a file), or None (no password, or
+        PostgreSQL's own password file ``PGPASSFILE`` / ``~/.pgpass``)."""
+        return self._password
 
     def retention_by_table(self) -> dict[str, float]:
         """Days each table keeps its rows [d]: readings and results their own periods when
@@ -503,6 +516,8 @@ class EnvOverrides(BaseSettings):
     model_config = SettingsConfigDict(env_prefix="BRAYSCOPE_", extra="ignore")
 
     database_url: str | None = None
+    database_password: SecretStr | None = None
+    database_password_file: str | None = None
     broker_host: str | None = None
     broker_port: int | None = Field(default=None, ge=1, le=65535)
     broker_password: SecretStr | None = None
@@ -634,7 +649,7 @@ class _Checker:
 
     def run(self, raw: dict[str, Any], env: EnvOverrides | None) -> PlantConfig | None:
         self._check_inline_secrets(raw, "")
-        self._check_database_url(raw)
+        self._check_urls(raw, "")
         plant: PlantConfig | None = None
         units: dict[str, _UnitView] = {}
         try:
@@ -679,16 +694,17 @@ class _Checker:
             for i, v in enumerate(node):
                 self._check_inline_secrets(v, f"{path}[{i}]")
 
-    def _check_database_url(self, raw: dict[str, Any]) -> None:
-        db = raw.get("database")
-        url = db.get("url") if isinstance(db, dict) else None
-        if isinstance(url, str) and _url_has_password(url):
-            self.add(
-                "database.url",
-                "the database URL carries a password inline (not shown)",
-                "remove the password from the URL; set the full URL in BRAYSCOPE_DATABASE_URL, "
-                "or use a PostgreSQL password file (PGPASSFILE / ~/.pgpass)",
-            )
+    def _check_urls(self, node: Any, path: str) -> None:
+        """Refuse every URL of the plant file that carries a secret (any key, any depth)."""
+        if isinstance(node, dict):
+            for k, v in node.items():
+                self._check_urls(v, f"{path}.{k}" if path else str(k))
+        elif isinstance(node, list):
+            for i, v in enumerate(node):
+                self._check_urls(v, f"{path}[{i}]")
+        elif isinstance(node, str):
+            for issue in _url_issues(node, self.fname, path):
+                self.issues.append(issue)
 
     # -- pydantic errors -----------------------------------------------------------------------
 
@@ -1056,6 +1072,10 @@ class _Checker:
                         ConfigIssue("environment", var, _message(err), "fix or unset " + var)
                     )
                 return
+        for name, value in env.model_dump().items():
+            if isinstance(value, str):
+                var = "BRAYSCOPE_" + name.upper()
+                self.issues.extend(_url_issues(value, "environment", var))
         if env.database_url:
             plant.database.url = env.database_url
         if env.broker_host:
@@ -1075,6 +1095,13 @@ class _Checker:
             plant.broker.password_file,
             "BRAYSCOPE_BROKER_PASSWORD",
             "broker.password_file",
+        )
+        plant.database._password = self._secret(
+            env.database_password,
+            env.database_password_file,
+            plant.database.password_file,
+            "BRAYSCOPE_DATABASE_PASSWORD",
+            "database.password_file",
         )
         plant.http._api_token = self._secret(
             env.api_token,
@@ -1310,15 +1337,36 @@ def _secret_env_name(path: str, key: str) -> str:
     if section == "http":
         return "BRAYSCOPE_API_TOKEN"
     if section == "database":
-        return "BRAYSCOPE_DATABASE_URL"
+        return "BRAYSCOPE_DATABASE_PASSWORD"
     return "the matching BRAYSCOPE_* variable"
 
 
-def _url_has_password(url: str) -> bool:
-    try:
-        return bool(urlsplit(url).password)
-    except ValueError:
-        return False
+def _url_issues(text: str, file: str, key_path: str) -> list[ConfigIssue]:
+    """One issue per URL in ``text`` that carries a secret (the secret is never shown)."""
+    out: list[ConfigIssue] = []
+    for url in urls_in(text):
+        where = url_secrets(url)
+        if not where:
+            continue
+        database = key_path in ("database.url", "BRAYSCOPE_DATABASE_URL")
+        fix = (
+            "remove it from the URL; give the database password with "
+            "BRAYSCOPE_DATABASE_PASSWORD, BRAYSCOPE_DATABASE_PASSWORD_FILE or "
+            "database.password_file (a file readable only by the daemon), or use "
+            "PostgreSQL's password file (PGPASSFILE / ~/.pgpass)"
+            if database
+            else "remove it from the URL; secrets come from the environment or from files "
+            "(see docs/configuration.md, Secrets and environment)"
+        )
+        out.append(
+            ConfigIssue(
+                file,
+                key_path,
+                f"a URL carries a secret in {', '.join(where)} (the value is not shown)",
+                fix,
+            )
+        )
+    return out
 
 
 #: Named SI units of the dimensions that have one in our measurement schema.

@@ -170,7 +170,7 @@ class Runtime:
     plant : daemon.config.PlantConfig
         Loaded plant file.
     store : Store, optional
-        Database; ``Store(plant.database.url)`` by default.
+        Database; ``Store.from_config(plant.database)`` by default.
     registry : CollectorRegistry, optional
         Metrics registry; a fresh one by default.
     clock : callable
@@ -205,7 +205,7 @@ class Runtime:
         self.metrics = Metrics(
             self.registry, list(plant.units), site=self.site, version=__version__, clock=clock
         )
-        self.store = store if store is not None else Store(plant.database.url)
+        self.store = store if store is not None else Store.from_config(plant.database)
         self.decoder = Decoder.from_plant(plant)
         self.assembler = Assembler.from_plant(plant, clock=clock)
         self.bindings: dict[str, UnitBinding] = bindings_from_plant(plant)

@@ -299,7 +299,7 @@ def test_all_errors_reported_at_once_by_check(
             'url = "sqlite:///./brayscope-data/brayscope.sqlite"',
             'url = "postgresql+psycopg://bray:hunter2@db/brayscope"',
             "database.url",
-            "BRAYSCOPE_DATABASE_URL",
+            "BRAYSCOPE_DATABASE_PASSWORD",
         ),
     ],
 )

@@ -37,6 +37,7 @@ from sqlalchemy.engine import URL, Connection, Engine, make_url
 from sqlalchemy.pool import StaticPool
 
 from daemon.storage import schema as s
+from daemon.urls import mask_url
 
 __all__ = [
     "MAX_DETAIL_CHARS",
@@ -196,9 +197,10 @@ class ResultRow:
 
 
 def redact_url(url: str | URL) -> str:
-    """Return ``url`` with any password replaced by ``***`` (safe to log)."""
+    """Return ``url`` with its password and every secret query parameter (``password``,
+    ``sslpassword``, ``token`` ...) replaced by ``***`` (safe to print and log)."""
     try:
-        return make_url(url).render_as_string(hide_password=True)
+        return mask_url(make_url(url).render_as_string(hide_password=True))
     except Exception:
         return "<unparsable database URL>"
 
@@ -220,6 +222,10 @@ class Store:
         ``postgresql+psycopg://user@host/db``.
     schema : str, optional
         PostgreSQL only: use this schema (created by :meth:`upgrade`) via ``search_path``.
+    password : str, optional
+        Password added to the URL's user part (the plant file's ``database.password_file`` or
+        ``BRAYSCOPE_DATABASE_PASSWORD``); the URL itself carries none.  Never shown:
+        :func:`redact_url` masks it.
     busy_timeout_ms : int
         SQLite: how long a writer waits for the lock [ms].
     connect_timeout_s : int
@@ -233,11 +239,14 @@ class Store:
         url: str,
         *,
         schema: str | None = None,
+        password: str | None = None,
         busy_timeout_ms: int = 10_000,
         connect_timeout_s: int = 5,
         echo: bool = False,
     ) -> None:
         self.url = make_url(url)
+        if password:
+            self.url = self.url.set(password=password)
         self.schema = schema
         backend = self.url.get_backend_name()
         if backend not in ("sqlite", "postgresql"):
@@ -276,6 +285,14 @@ class Store:
                     cur.execute("PRAGMA foreign_keys=ON")
                 finally:
                     cur.close()
+
+    @classmethod
+    def from_config(cls, database: Any, **kwargs: Any) -> Store:
+        """The store of a plant file's ``[database]`` (``daemon.config.DatabaseConfig``: its
+        ``url`` and, when given, its ``password``)."""
+        secret = getattr(database, "password", None)
+        password = secret.get_secret_value() if secret is not None else None
+        return cls(database.url, password=password, **kwargs)
 
     # -- lifecycle -----------------------------------------------------------------------------
 
