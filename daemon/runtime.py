@@ -24,6 +24,11 @@ to have them sent again; readiness turns false within ``db_probe_s`` seconds.  R
 cannot be written wait in a bounded in-memory buffer (:data:`MAX_PENDING_RESULTS`) and are
 written with the next tick; results can also be recomputed from the stored readings.
 
+Subscriptions: the filters subscribed under the broker client id are remembered in the
+database (``broker_subscriptions``) before they are subscribed; filters remembered from an
+earlier plant file are unsubscribed after the current ones are subscribed, then forgotten
+(a persistent session would otherwise keep delivering them; MQTT cannot list them).
+
 Warm start: on start the assembler is primed from the readings stored in the last
 ``max_age_s`` of each tag, so a restart (or a crash after a commit but before the in-memory
 ingest) does not lose held values.
@@ -226,6 +231,7 @@ class Runtime:
             username=plant.broker.username or None,
             password=secret,
             tls_context=tls,
+            on_retired=self._forget_filters,
             **dict(feed_options or {}),
         )
         self.publisher: ResultPublisher | None = (
@@ -359,6 +365,27 @@ class Runtime:
     def _prepare_db_sync(self) -> None:
         self.store.upgrade()
         self.store.upsert_units(self.plant.units)
+        self._reconcile_subscriptions()
+
+    def _reconcile_subscriptions(self) -> None:
+        """Remember the current filters under the client id (before subscribing them) and
+        hand the feed those remembered from an earlier plant file, to unsubscribe."""
+        client_id = self.plant.broker.client_id
+        previous = self.store.subscriptions(client_id)
+        self.store.remember_subscriptions(client_id, self.filters)
+        stale = [f for f in previous if f not in self.filters]
+        if stale:
+            log.info(
+                "%d subscription filter(s) of an earlier plant file will be unsubscribed: %s",
+                len(stale),
+                stale,
+            )
+        self.feed.retire(stale)
+
+    async def _forget_filters(self, filters: list[str]) -> None:
+        """The broker confirmed the unsubscribe of ``filters``: forget them."""
+        client_id = self.plant.broker.client_id
+        await asyncio.to_thread(self.store.forget_subscriptions, client_id, filters)
 
     async def _prepare_db(self) -> None:
         """Migrate and register units; retried until it works (the daemon never gives up)."""

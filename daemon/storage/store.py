@@ -564,6 +564,41 @@ class Store:
         with self.engine.begin() as conn:
             conn.execute(sa.insert(s.events), [row])
 
+    # -- broker subscriptions ----------------------------------------------------------------
+
+    def subscriptions(self, client_id: str) -> list[str]:
+        """The MQTT topic filters remembered as subscribed under ``client_id``, sorted."""
+        c = s.broker_subscriptions.c
+        q = sa.select(c.topic_filter).where(c.client_id == client_id).order_by(c.topic_filter)
+        with self.engine.connect() as conn:
+            return [str(f) for f in conn.execute(q).scalars()]
+
+    def remember_subscriptions(self, client_id: str, filters: Iterable[str]) -> int:
+        """Record ``filters`` as subscribed under ``client_id`` (before subscribing, so the
+        record never misses a subscription the broker holds); returns how many were new."""
+        now = datetime.now(UTC)
+        rows = [
+            {"client_id": client_id, "topic_filter": f, "subscribed_at": now}
+            for f in dict.fromkeys(filters)
+        ]
+        if not rows:
+            return 0
+        with self.engine.begin() as conn:
+            return self._insert_ignore(conn, s.broker_subscriptions, rows)
+
+    def forget_subscriptions(self, client_id: str, filters: Iterable[str]) -> int:
+        """Drop ``filters`` of ``client_id`` (after the broker confirmed the unsubscribe);
+        returns how many rows went."""
+        names = list(dict.fromkeys(filters))
+        if not names:
+            return 0
+        c = s.broker_subscriptions.c
+        stmt = s.broker_subscriptions.delete().where(
+            c.client_id == client_id, c.topic_filter.in_(names)
+        )
+        with self.engine.begin() as conn:
+            return int(conn.execute(stmt).rowcount)
+
     # -- reads ---------------------------------------------------------------------------------
 
     def latest_results(self, unit: str, n: int = 1) -> list[dict[str, Any]]:
