@@ -21,7 +21,7 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from live_support import free_port, plant_toml, snapshot_messages, topic_of
+from live_support import snapshot_messages, topic_of, write_plant
 from test_runtime import _publish, _until, running
 
 from daemon.assembly import CLOCK_AHEAD_SLACK_S, Assembler, UnitSpec, hold_time
@@ -98,16 +98,8 @@ def test_a_future_bad_mark_does_not_mask_later_good_readings() -> None:
 
 
 def _plant(tmp_path: Path, port: int, db: str, prefix: str, client_id: str) -> Any:
-    path = tmp_path / "plant.toml"
-    path.write_text(
-        plant_toml(
-            prefix=prefix,
-            broker_port=port,
-            database_url=db,
-            http_port=free_port(),
-            client_id=client_id,
-            session_expiry_s=120,
-        )
+    path, _, _ = write_plant(
+        tmp_path, database_url=db, broker_port=port, prefix=prefix, client_id=client_id
     )
     return load_plant(path)
 

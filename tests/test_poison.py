@@ -30,7 +30,7 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from live_support import free_port, plant_toml, snapshot_messages, topic_of
+from live_support import free_port, snapshot_messages, topic_of, write_plant
 from test_runtime import _metric, _publish, _until, running
 
 from daemon.config import load_plant
@@ -63,19 +63,35 @@ AUX_BLOCK = """
 
 def _load(tmp_path: Path, broker_port: int, db: str) -> Any:
     prefix = f"bstest/{uuid.uuid4().hex[:10]}"
-    text = plant_toml(
-        prefix=prefix,
-        broker_port=broker_port,
+    path, _, _ = write_plant(
+        tmp_path,
         database_url=db,
-        http_port=free_port(),
-        client_id=f"bs-poison-{uuid.uuid4().hex[:8]}",
-        session_expiry_s=120,
+        broker_port=broker_port,
+        prefix=prefix,
+        edit=lambda text: text + AUX_BLOCK.format(prefix=prefix),
     )
-    path = tmp_path / "plant.toml"
-    path.write_text(text + AUX_BLOCK.format(prefix=prefix))
     plant = load_plant(path)
     plant._test_prefix = prefix  # type: ignore[attr-defined]
     return plant
+
+
+async def _burst(
+    rt: Runtime, port: int, poison: list[tuple[str, bytes]]
+) -> tuple[ReadyWatch, list[tuple[str, bytes]]]:
+    """Publish good readings, the poison, more good readings; wait until every good reading
+    is stored and every poison message quarantined, watching readiness meanwhile."""
+    prefix = rt.plant._test_prefix
+    now = time.time()
+    good = snapshot_messages(prefix, "KR-GT1", now - 5) + snapshot_messages(
+        prefix, "KR-GT1", now - 4
+    )
+    half = len(good) // 2
+    with ReadyWatch(rt) as watch:
+        await _publish(port, good[:half] + poison + good[half:])
+        await _until(lambda: rt.store.count("readings") == len(good), 20, "good readings stored")
+        await _until(lambda: rt.store.count("quarantine") == len(poison), 10, "poison quarantined")
+        await asyncio.sleep(0.3)
+    return watch, good
 
 
 def _poison_messages(prefix: str) -> list[tuple[str, bytes]]:
@@ -157,24 +173,9 @@ async def test_poison_timestamps_are_quarantined_and_ingestion_goes_on(
     mqtt_broker.require(v5=True)
     print(f"broker: {mqtt_broker.describe()}; database: {store_url.rsplit('@', maxsplit=1)[-1]}")
     plant = _load(tmp_path, mqtt_broker.port, store_url)
-    prefix = plant._test_prefix
     rt = Runtime(plant, serve_http=False, publish=False)
     async with running(rt) as task:
-        now = time.time()
-        good = snapshot_messages(prefix, "KR-GT1", now - 5)
-        later = snapshot_messages(prefix, "KR-GT1", now - 4)
-        poison = _poison_messages(prefix)
-        with ReadyWatch(rt) as watch:
-            await _publish(mqtt_broker.port, good + poison + later)
-            await _until(
-                lambda: rt.store.count("readings") == len(good) + len(later),
-                20,
-                "every good reading stored",
-            )
-            await _until(
-                lambda: rt.store.count("quarantine") == len(poison), 10, "every poison quarantined"
-            )
-            await asyncio.sleep(0.3)
+        watch, _ = await _burst(rt, mqtt_broker.port, _poison_messages(plant._test_prefix))
         assert watch.not_ready == []  # readiness never flapped
         assert _metric(rt, "brayscope_commit_failures_total") == 0
         assert _metric(rt, "brayscope_database_up") == 1
@@ -199,21 +200,9 @@ async def test_a_value_the_database_refuses_is_isolated_as_unstorable(
     rt = Runtime(plant, serve_http=False, publish=False)
     assert "unstorable" in QUARANTINE_REASONS
     async with running(rt) as task:
-        now = time.time()
-        good = snapshot_messages(prefix, "KR-GT1", now - 5)
-        later = snapshot_messages(prefix, "KR-GT1", now - 4)
         amb = topic_of(prefix, "KR-GT1", "ambient_temperature")
         poison = [(amb, json.dumps({"value": 12, "ts": ts}).encode()) for ts in POISON_TS]
-        with ReadyWatch(rt) as watch:
-            await _publish(mqtt_broker.port, good + poison + later)
-            await _until(
-                lambda: rt.store.count("readings") == len(good) + len(later),
-                20,
-                "every good reading stored",
-            )
-            await _until(
-                lambda: rt.store.count("quarantine") == len(poison), 10, "poison quarantined"
-            )
+        watch, _ = await _burst(rt, mqtt_broker.port, poison)
         assert watch.not_ready == []
         rows = rt.store.quarantine_rows(100)
         assert {r["reason"] for r in rows} == {"unstorable"}
@@ -277,24 +266,21 @@ def test_check_refuses_absurd_windows(
 ) -> None:
     from daemon.cli import main
 
-    text = plant_toml(
-        prefix="bstest/x",
-        broker_port=1883,
-        database_url=f"sqlite:///{tmp_path / 'x.sqlite'}",
-        http_port=9478,
-        client_id="bs-check",
-    )
-    lines = [
-        f"{ln.split('=')[0].rstrip()} = {value}" if ln.strip().startswith(key + " ") else ln
-        for ln in text.splitlines()
-    ]
-    assert lines != text.splitlines(), key
-    path = tmp_path / "plant.toml"
-    path.write_text("\n".join(lines) + "\n")
+    db = f"sqlite:///{tmp_path / 'x.sqlite'}"
+
+    def absurd(text: str) -> str:
+        lines = [
+            f"{ln.split('=')[0].rstrip()} = {value}" if ln.strip().startswith(key + " ") else ln
+            for ln in text.splitlines()
+        ]
+        assert lines != text.splitlines(), key
+        return "\n".join(lines) + "\n"
+
+    path, _, _ = write_plant(tmp_path, database_url=db, edit=absurd)
     assert main(["check", "-c", str(path)]) == 1
     err = capsys.readouterr().err
     assert f"{key}: Input should be less than or equal to" in err, err
     assert "fix: give a number <=" in err
     # and the shipped windows stay accepted
-    path.write_text(text)
+    path, _, _ = write_plant(tmp_path, database_url=db)
     assert main(["check", "-c", str(path)]) == 0

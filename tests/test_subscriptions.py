@@ -26,7 +26,7 @@ from typing import Any
 import aiomqtt
 import paho.mqtt.client as paho
 import pytest
-from live_support import free_port, plant_toml, topic_of
+from live_support import topic_of, write_plant
 from test_runtime import _metric, _publish, _until, running
 
 from daemon.config import load_plant
@@ -36,22 +36,22 @@ from daemon.runtime import Runtime
 def _plant(
     tmp_path: Path, name: str, *, prefix: str, client_id: str, port: int, db: str, **kw: Any
 ) -> Any:
-    protocol = kw.pop("protocol", "5")
     moved = kw.pop("moved_topic", None)
-    text = plant_toml(
-        prefix=prefix,
-        broker_port=port,
+    old = topic_of(prefix, "KR-GT1", "fuel_temperature")
+
+    def edit(text: str) -> str:  # the plant engineer moved one tag to another topic
+        return text if moved is None else text.replace(f'topic = "{old}"', f'topic = "{moved}"')
+
+    path, _, _ = write_plant(
+        tmp_path,
         database_url=db,
-        http_port=free_port(),
+        broker_port=port,
+        name=name,
+        prefix=prefix,
         client_id=client_id,
-        session_expiry_s=120,
+        edit=edit,
         **kw,
-    ).replace('protocol = "5"', f'protocol = "{protocol}"')
-    if moved is not None:  # the plant engineer moved one tag to another topic
-        old = topic_of(prefix, "KR-GT1", "fuel_temperature")
-        text = text.replace(f'topic = "{old}"', f'topic = "{moved}"')
-    path = tmp_path / name
-    path.write_text(text)
+    )
     return load_plant(path)
 
 
