@@ -882,13 +882,15 @@ class MqttFeed:
         return out
 
     def _unstorable(self, m: _Inbound, r: DecodeResult, exc: UnstorableError) -> DecodeResult:
-        """The whole message as one quarantined item (counted as one received item)."""
+        """The whole message as one quarantined item (counted as one received item); its
+        texts are plain printable ASCII, so this row itself can always be stored."""
+        detail = f"the database refused this message: {exc}"[:500]
         q = Quarantined(
             received_ts=m.received_ts,
             topic=m.topic,
             payload=m.payload[: self.decoder.limits.quarantine_payload_limit],
             reason="unstorable",
-            detail=f"the database refused this message: {exc}"[:500],
+            detail=detail.encode("ascii", "backslashreplace").decode("ascii").replace("\x00", ""),
             unit=self.decoder.unit_of(m.topic),
         )
         return DecodeResult(m.topic, 1, (), (q,), r.seq)
