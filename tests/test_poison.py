@@ -277,7 +277,7 @@ def test_check_refuses_absurd_windows(
         return "\n".join(lines) + "\n"
 
     path, _, _ = write_plant(tmp_path, database_url=db, edit=absurd)
-    assert main(["check", "-c", str(path)]) == 1
+    assert main(["check", "-c", str(path)]) == 2
     err = capsys.readouterr().err
     assert f"{key}: Input should be less than or equal to" in err, err
     assert "fix: give a number <=" in err
