@@ -4,8 +4,17 @@ Rules (per unit, per measurement):
 
 * **Sample and hold.**  The latest *usable* reading (quality good or uncertain) is held and
   used at every tick until it is older than the tag's ``max_age_s`` (the largest when several
-  tags feed one measurement).  Age is ``tick_ts − source_ts``, clamped at 0 for readings
-  stamped slightly after the tick.
+  tags feed one measurement).  Age is ``tick_ts − t``, clamped at 0 for readings stamped
+  slightly after the tick, where ``t`` is the reading's *hold time* (next rule).
+* **Hold time.**  A reading counts at ``t = min(source_ts, received_ts)``: its source time, or
+  its receive time when the source clock is ahead of the receive clock.  A reading stamped in
+  the future (inside ``future_tolerance_s``) is therefore held in receive order: the next
+  correct reading replaces it instead of being ignored as older, and it ages from its receipt.
+  While such a reading (ahead by more than :data:`CLOCK_AHEAD_SLACK_S`) is held, the
+  measurement carries the warning bit ``CLOCK_AHEAD`` (the value is used; the result's
+  warnings say ``clock_ahead``).  Bad marks use the same hold time.  The rule needs only
+  ``source_ts`` and ``received_ts``, both stored, so a warm start from stored readings ends in
+  the same state.
 * **Order.**  A reading older than (or as old as) the held one never replaces it: shuffled and
   redelivered readings cannot move a value back in time.
 * **Bad marks.**  A quarantined value that belonged to a known measurement (reason
@@ -23,7 +32,8 @@ Rules (per unit, per measurement):
   snapshot: :meth:`Assembler.aux`.
 * **Tick output.**  ``values`` NaN and a :class:`models.status.Reason` bit where the value is
   missing (``INPUT_MISSING``: never received), stale (``INPUT_STALE``) or bad (see above);
-  ``age_s`` NaN when nothing was ever held.
+  ``age_s`` NaN when nothing was ever held.  ``CLOCK_AHEAD`` is the one warning bit: it comes
+  with a usable value.
 * **Silence.**  A unit for which nothing at all has arrived yet (no reading, no bad mark) emits
   no snapshot; once anything arrived it emits one every tick, NaN and flagged as it ages.
 * **Ticks** are aligned to multiples of ``tick_s`` in UTC epoch seconds (``floor(now / tick_s) ·
@@ -56,11 +66,14 @@ from models.steady import DEFAULT_ENTER, DEFAULT_LEAVE, RStatisticState, steady_
 
 __all__ = [
     "BAD_MARK_REASONS",
+    "CLOCK_AHEAD_BITS",
+    "CLOCK_AHEAD_SLACK_S",
     "DISAGREE_BITS",
     "STUCK_BITS",
     "Assembler",
     "AssemblyCounters",
     "UnitSpec",
+    "hold_time",
 ]
 
 #: Prefix of auxiliary measurements (``daemon.config.AUX_PREFIX``).
@@ -168,6 +181,43 @@ class UnitSpec:
 #: (value [SI], Reason bits, age [s]) of one reading name at one tick.
 _Channel = tuple[float, int, float]
 
+#: A source time ahead of the receive time by more than this is flagged ``CLOCK_AHEAD`` [s]
+#: (smaller leads are ordinary clock jitter; they are held in receive order all the same).
+CLOCK_AHEAD_SLACK_S = 1.0
+#: Warning bit of a held value whose source clock was ahead of the receive clock.
+CLOCK_AHEAD_BITS = int(Reason.CLOCK_AHEAD)
+#: Bits that flag a value without making it unusable.
+_WARNING_BITS = CLOCK_AHEAD_BITS
+
+
+def hold_time(source_ts: float, received_ts: float) -> tuple[float, bool]:
+    """The time a reading is held at, and whether its source clock was ahead.
+
+    Parameters
+    ----------
+    source_ts : float
+        Source timestamp [s since the epoch].
+    received_ts : float
+        Receive time [s since the epoch].
+
+    Returns
+    -------
+    (float, bool)
+        ``min(source_ts, received_ts)`` [s], and True when the source time was more than
+        :data:`CLOCK_AHEAD_SLACK_S` ahead of the receive time.
+
+    Examples
+    --------
+    >>> hold_time(1000.0, 1000.2)
+    (1000.0, False)
+    >>> hold_time(1290.0, 1000.0)
+    (1000.0, True)
+    """
+    if source_ts > received_ts:
+        return received_ts, source_ts - received_ts > CLOCK_AHEAD_SLACK_S
+    return source_ts, False
+
+
 #: Bits of a stuck sensor (``daemon.compute.INPUT_REASONS`` refuses the value).
 STUCK_BITS = int(Reason.INPUT_STUCK)
 #: Bits of a redundant group whose sensors disagree.
@@ -202,8 +252,9 @@ def _canonical(name: str) -> str:
 @dataclass
 class _Held:
     value: float = math.nan
-    source_ts: float = -math.inf
+    source_ts: float = -math.inf  # hold time of the value (see hold_time)
     quality: str = ""
+    ahead: bool = False  # the held value's source clock was ahead (CLOCK_AHEAD)
     bad_ts: float = -math.inf
     bad_bit: int = 0
     run_value: float = math.nan  # first value of the current run within the stuck band
@@ -227,6 +278,7 @@ class AssemblyCounters:
     older_ignored: int = 0
     unknown_ignored: int = 0
     stuck_flagged: int = 0  # times a sensor entered the stuck state
+    clock_ahead: int = 0  # readings held whose source clock was ahead of the receive clock
 
 
 class Assembler:
@@ -289,17 +341,19 @@ class Assembler:
                 continue
             st.seen = True
             h = st.held.setdefault(r.measurement, _Held())
+            t, ahead = hold_time(r.source_ts, r.received_ts)
             if r.quality == "bad" or (self.uncertain_as_bad and r.quality == "uncertain"):
-                if r.source_ts > h.bad_ts:
-                    h.bad_ts, h.bad_bit = r.source_ts, int(Reason.INPUT_BAD_QUALITY)
+                if t > h.bad_ts:
+                    h.bad_ts, h.bad_bit = t, int(Reason.INPUT_BAD_QUALITY)
                 continue
-            if r.source_ts <= h.source_ts:
+            if t <= h.source_ts:
                 self.counters.older_ignored += 1
                 continue
-            h.value, h.source_ts, h.quality = r.value, r.source_ts, r.quality
+            h.value, h.source_ts, h.quality, h.ahead = r.value, t, r.quality, ahead
+            self.counters.clock_ahead += ahead
             rule = st.spec.stuck.get(r.measurement)
             if rule is not None:
-                self._track_run(h, r, rule)
+                self._track_run(h, r, t, rule)
         for q in quarantined:
             bit = BAD_MARK_REASONS.get(q.reason)
             if bit is None or q.unit is None or q.measurement is None:
@@ -309,17 +363,19 @@ class Assembler:
                 continue
             st.seen = True
             h = st.held.setdefault(q.measurement, _Held())
-            ts = q.source_ts if q.source_ts is not None else q.received_ts
+            ts = q.received_ts
+            if q.source_ts is not None:
+                ts = hold_time(q.source_ts, q.received_ts)[0]
             if ts > h.bad_ts:
                 h.bad_ts, h.bad_bit = ts, int(bit)
 
-    def _track_run(self, h: _Held, r: Reading, rule: tuple[float, float]) -> None:
+    def _track_run(self, h: _Held, r: Reading, t: float, rule: tuple[float, float]) -> None:
         after_s, band = rule
         x = _raw_number(r)
         if not abs(x - h.run_value) <= band:  # moved out of the band (or first value): new run
-            h.run_value, h.run_start = x, r.source_ts
+            h.run_value, h.run_start = x, t
         was = h.stuck
-        h.stuck = r.source_ts - h.run_start > after_s
+        h.stuck = t - h.run_start > after_s
         if h.stuck and not was:
             self.counters.stuck_flagged += 1
 
@@ -387,13 +443,18 @@ class Assembler:
             return math.nan, int(Reason.INPUT_STALE), age
         if h.stuck:
             return math.nan, STUCK_BITS, age
-        return h.value, 0, age
+        return h.value, CLOCK_AHEAD_BITS if h.ahead else 0, age
 
     def _group(self, st: _UnitState, m: str, names: tuple[str, ...], t: float) -> _Channel:
         """Combine the redundant sensors of ``m``: the mean of the usable ones when they agree
         within ``max_spread``, NaN with ``INPUT_DISAGREE`` when they do not."""
         chans = [self._channel(st, n, t) for n in names]
-        usable = [(v, a) for v, b, a in chans if b == 0]
+        usable: list[tuple[float, float]] = []
+        warn = 0  # warning bits of the sensors used
+        for v, b, a in chans:
+            if b & ~_WARNING_BITS == 0:
+                usable.append((v, a))
+                warn |= b
         if not usable:
             seen = [b for _, b, _ in chans if b != int(Reason.INPUT_MISSING)]
             bits = 0
@@ -405,7 +466,7 @@ class Assembler:
         age = max(a for _, a in usable)
         if max(vals) - min(vals) > st.spec.max_spread.get(m, math.inf):
             return math.nan, DISAGREE_BITS, age
-        return math.fsum(vals) / len(vals), 0, age
+        return math.fsum(vals) / len(vals), warn, age
 
     def channels(self, unit: str, ts: float) -> dict[str, _Channel]:
         """Every reading name of ``unit`` (plain measurements, each redundant sensor,

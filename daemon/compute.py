@@ -32,6 +32,7 @@ from models.unit_types import UnitType
 
 __all__ = [
     "INPUT_REASONS",
+    "INPUT_WARNINGS",
     "Result",
     "UnitBinding",
     "bindings_from_plant",
@@ -50,6 +51,9 @@ INPUT_REASONS = int(
     | Reason.INPUT_STUCK
     | Reason.INPUT_DISAGREE
 )
+
+#: Snapshot quality bits that flag a usable measurement; passed on to the result's status.
+INPUT_WARNINGS = int(Reason.CLOCK_AHEAD)
 
 
 @dataclass(frozen=True)
@@ -235,6 +239,8 @@ def _compute_group(
             v = s.values.get(spec.name, math.nan)
             if q & INPUT_REASONS:
                 v = math.nan
+            elif not math.isnan(v):
+                qual[j] |= q & INPUT_WARNINGS  # a used input's warnings go to the result
             arr[j] = v
             if spec.required:
                 qual[j] |= q & INPUT_REASONS

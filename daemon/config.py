@@ -4,12 +4,16 @@
 whose tags carry compiled unit converters (see :mod:`daemon.uom`).  Every problem found is
 reported at once, each as ``FILE: key.path: message — fix: what to write instead``.
 
-Secrets (the broker password, the API tokens) never live in the plant file: they come from the
-environment (``BRAYSCOPE_BROKER_PASSWORD``, ``BRAYSCOPE_API_TOKEN``, ``BRAYSCOPE_API_READ_TOKEN``),
-from files named by the ``*_FILE`` variables of the same names, or from files named in the plant
-file (``broker.password_file``, ``http.api_token_file``, ``http.read_token_file``).  A secret
-written inline is an error.  Non-secret overrides from the environment: ``BRAYSCOPE_DATABASE_URL``,
-``BRAYSCOPE_BROKER_HOST``, ``BRAYSCOPE_BROKER_PORT``, ``BRAYSCOPE_HTTP_BIND``.
+Secrets (the broker and database passwords, the API tokens) never live in the plant file: they
+come from the environment (``BRAYSCOPE_BROKER_PASSWORD``, ``BRAYSCOPE_DATABASE_PASSWORD``,
+``BRAYSCOPE_API_TOKEN``, ``BRAYSCOPE_API_READ_TOKEN``), from files named by the ``*_FILE``
+variables of the same names, or from files named in the plant file (``broker.password_file``,
+``database.password_file``, ``http.api_token_file``, ``http.read_token_file``).  A secret
+written inline is an error, and so is a URL carrying one (a password in its user part, or a
+query parameter such as ``password``, ``sslpassword``, ``token``; :func:`daemon.urls.url_secrets`),
+in the plant file or in the environment.  Non-secret overrides from the environment:
+``BRAYSCOPE_DATABASE_URL``, ``BRAYSCOPE_BROKER_HOST``, ``BRAYSCOPE_BROKER_PORT``,
+``BRAYSCOPE_HTTP_BIND``.
 
 Exception tree::
 
@@ -31,7 +35,6 @@ import tomllib
 from collections.abc import Iterator, Mapping
 from pathlib import Path
 from typing import Any, Literal, NamedTuple, overload
-from urllib.parse import urlsplit
 
 import numpy as np
 import pint
@@ -40,6 +43,7 @@ from pydantic import BaseModel, ConfigDict, Field, PrivateAttr, SecretStr, Valid
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
 from daemon.uom import Converter, UomError, compile_converter, get_registry, parse_uom
+from daemon.urls import url_secrets, urls_in
 from models.unit_types import FieldSpec, UnitType
 
 __all__ = [
@@ -65,6 +69,18 @@ FloatArray = NDArray[np.float64]
 SECRET_KEYS = frozenset(
     {"password", "passwd", "pass", "token", "api_token", "read_token", "secret", "api_key"}
 )
+#: Why a time window has its upper bound (appended to the fix of a value above it): an absurd
+#: window lets timestamps through that no row can hold, or breaks the protocol.
+WINDOW_LIMITS: dict[str, str] = {
+    "future_tolerance_s": "a source clock more than a day ahead is a clock fault, not data",
+    "past_tolerance_s": "10 years; older source times are quarantined as past_timestamp",
+    "tick_s": "one day at most",
+    "max_age_s": "366 days at most",
+    "stuck_after_s": "366 days at most",
+    "retention_days": "100 years at most",
+    "session_expiry_s": "MQTT 5 session expiry is a 4-byte integer; 4294967295 = never",
+    "keepalive_s": "MQTT keep alive is a 2-byte integer of seconds",
+}
 #: Unit names become MQTT topic levels, SQL keys and metric labels: keep them plain.
 UNIT_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 #: Default barometric reference of gauge-pressure tags.
@@ -138,8 +154,8 @@ class BrokerConfig(_Section):
     password_file: str = ""
     client_id: str = Field(default="brayscope", min_length=1, max_length=128)
     qos: int = Field(default=1, ge=0, le=2)
-    keepalive_s: float = Field(default=30.0, gt=0.0)
-    session_expiry_s: int = Field(default=86400, ge=0)
+    keepalive_s: float = Field(default=30.0, gt=0.0, le=65535.0)
+    session_expiry_s: int = Field(default=86400, ge=0, le=4294967295)
     queue_size: int = Field(default=10000, gt=0)
 
     _password: SecretStr | None = PrivateAttr(default=None)
@@ -158,9 +174,18 @@ class DatabaseConfig(_Section):
     """
 
     url: str = Field(default="sqlite:///./brayscope-data/brayscope.sqlite", min_length=1)
-    retention_days: float = Field(default=400.0, gt=0.0)
-    readings_retention_days: float | None = Field(default=None, gt=0.0)
-    results_retention_days: float | None = Field(default=None, gt=0.0)
+    retention_days: float = Field(default=400.0, gt=0.0, le=36525.0)
+    readings_retention_days: float | None = Field(default=None, gt=0.0, le=36525.0)
+    results_retention_days: float | None = Field(default=None, gt=0.0, le=36525.0)
+    password_file: str = ""
+
+    _password: SecretStr | None = PrivateAttr(default=None)
+
+    @property
+    def password(self) -> SecretStr | None:
+        """The database password (from the environment or a file), or None (no password, or
+        PostgreSQL's own password file ``PGPASSFILE`` / ``~/.pgpass``)."""
+        return self._password
 
     def retention_by_table(self) -> dict[str, float]:
         """Days each table keeps its rows [d]: readings and results their own periods when
@@ -207,11 +232,11 @@ class HttpConfig(_Section):
 class DaemonConfig(_Section):
     """``[daemon]``: the live loop."""
 
-    tick_s: float = Field(default=10.0, gt=0.0)
+    tick_s: float = Field(default=10.0, gt=0.0, le=86400.0)
     results_topic_prefix: str = Field(default="brayscope", min_length=1)
     max_payload_bytes: int = Field(default=65536, gt=0)
-    future_tolerance_s: float = Field(default=300.0, ge=0.0)
-    past_tolerance_s: float = Field(default=86400.0, ge=0.0)
+    future_tolerance_s: float = Field(default=300.0, ge=0.0, le=86400.0)
+    past_tolerance_s: float = Field(default=86400.0, ge=0.0, le=315576000.0)
     steady_window: int = Field(default=30, ge=2)
     subscriptions: Literal["exact", "parent"] = "exact"
 
@@ -278,11 +303,11 @@ class TagConfig(_Section):
     uom: str
     low: float
     high: float
-    max_age_s: float = Field(default=60.0, gt=0.0)
+    max_age_s: float = Field(default=60.0, gt=0.0, le=31622400.0)
     baro_measurement: str | None = None
     baro_pa: float | None = Field(default=None, gt=0.0)
     max_spread: float | None = Field(default=None, gt=0.0)
-    stuck_after_s: float | None = Field(default=None, gt=0.0)
+    stuck_after_s: float | None = Field(default=None, gt=0.0, le=31622400.0)
     stuck_band: float = Field(default=0.0, ge=0.0)
     description: str = ""
 
@@ -491,6 +516,8 @@ class EnvOverrides(BaseSettings):
     model_config = SettingsConfigDict(env_prefix="BRAYSCOPE_", extra="ignore")
 
     database_url: str | None = None
+    database_password: SecretStr | None = None
+    database_password_file: str | None = None
     broker_host: str | None = None
     broker_port: int | None = Field(default=None, ge=1, le=65535)
     broker_password: SecretStr | None = None
@@ -622,7 +649,7 @@ class _Checker:
 
     def run(self, raw: dict[str, Any], env: EnvOverrides | None) -> PlantConfig | None:
         self._check_inline_secrets(raw, "")
-        self._check_database_url(raw)
+        self._check_urls(raw, "")
         plant: PlantConfig | None = None
         units: dict[str, _UnitView] = {}
         try:
@@ -667,16 +694,17 @@ class _Checker:
             for i, v in enumerate(node):
                 self._check_inline_secrets(v, f"{path}[{i}]")
 
-    def _check_database_url(self, raw: dict[str, Any]) -> None:
-        db = raw.get("database")
-        url = db.get("url") if isinstance(db, dict) else None
-        if isinstance(url, str) and _url_has_password(url):
-            self.add(
-                "database.url",
-                "the database URL carries a password inline (not shown)",
-                "remove the password from the URL; set the full URL in BRAYSCOPE_DATABASE_URL, "
-                "or use a PostgreSQL password file (PGPASSFILE / ~/.pgpass)",
-            )
+    def _check_urls(self, node: Any, path: str) -> None:
+        """Refuse every URL of the plant file that carries a secret (any key, any depth)."""
+        if isinstance(node, dict):
+            for k, v in node.items():
+                self._check_urls(v, f"{path}.{k}" if path else str(k))
+        elif isinstance(node, list):
+            for i, v in enumerate(node):
+                self._check_urls(v, f"{path}[{i}]")
+        elif isinstance(node, str):
+            for issue in _url_issues(node, self.fname, path):
+                self.issues.append(issue)
 
     # -- pydantic errors -----------------------------------------------------------------------
 
@@ -1044,6 +1072,10 @@ class _Checker:
                         ConfigIssue("environment", var, _message(err), "fix or unset " + var)
                     )
                 return
+        for name, value in env.model_dump().items():
+            if isinstance(value, str):
+                var = "BRAYSCOPE_" + name.upper()
+                self.issues.extend(_url_issues(value, "environment", var))
         if env.database_url:
             plant.database.url = env.database_url
         if env.broker_host:
@@ -1063,6 +1095,13 @@ class _Checker:
             plant.broker.password_file,
             "BRAYSCOPE_BROKER_PASSWORD",
             "broker.password_file",
+        )
+        plant.database._password = self._secret(
+            env.database_password,
+            env.database_password_file,
+            plant.database.password_file,
+            "BRAYSCOPE_DATABASE_PASSWORD",
+            "database.password_file",
         )
         plant.http._api_token = self._secret(
             env.api_token,
@@ -1226,14 +1265,16 @@ def _fix(err: Any, model: type[BaseModel], loc: tuple[str | int, ...]) -> str:
     if kind == "missing":
         return f"add {loc[-1]} = ..." if loc else "add the key"
     if kind in ("greater_than", "greater_than_equal", "less_than", "less_than_equal"):
+        why = WINDOW_LIMITS.get(str(loc[-1])) if loc and kind.startswith("less") else None
         return (
             "give a number "
             + {
                 "greater_than": f"> {ctx.get('gt')}",
                 "greater_than_equal": f">= {ctx.get('ge')}",
                 "less_than": f"< {ctx.get('lt')}",
-                "less_than_equal": f"<= {ctx.get('le')}",
+                "less_than_equal": f"<= {_bound_text(ctx.get('le'))}",
             }[kind]
+            + (f" ({why})" if why else "")
         )
     if kind == "literal_error":
         return f"use one of {ctx.get('expected')}"
@@ -1252,6 +1293,13 @@ def _fix(err: Any, model: type[BaseModel], loc: tuple[str | int, ...]) -> str:
     if kind == "bool_type":
         return "write true or false"
     return "see docs/configuration.md"
+
+
+def _bound_text(bound: Any) -> str:
+    """A bound of a range error as written in a plant file (86400, not 86400.0)."""
+    if isinstance(bound, float) and bound.is_integer():
+        return str(int(bound))
+    return str(bound)
 
 
 def _did_you_mean(word: str, choices: Mapping[str, Any] | Any) -> str:
@@ -1289,15 +1337,36 @@ def _secret_env_name(path: str, key: str) -> str:
     if section == "http":
         return "BRAYSCOPE_API_TOKEN"
     if section == "database":
-        return "BRAYSCOPE_DATABASE_URL"
+        return "BRAYSCOPE_DATABASE_PASSWORD"
     return "the matching BRAYSCOPE_* variable"
 
 
-def _url_has_password(url: str) -> bool:
-    try:
-        return bool(urlsplit(url).password)
-    except ValueError:
-        return False
+def _url_issues(text: str, file: str, key_path: str) -> list[ConfigIssue]:
+    """One issue per URL in ``text`` that carries a secret (the secret is never shown)."""
+    out: list[ConfigIssue] = []
+    for url in urls_in(text):
+        where = url_secrets(url)
+        if not where:
+            continue
+        database = key_path in ("database.url", "BRAYSCOPE_DATABASE_URL")
+        fix = (
+            "remove it from the URL; give the database password with "
+            "BRAYSCOPE_DATABASE_PASSWORD, BRAYSCOPE_DATABASE_PASSWORD_FILE or "
+            "database.password_file (a file readable only by the daemon), or use "
+            "PostgreSQL's password file (PGPASSFILE / ~/.pgpass)"
+            if database
+            else "remove it from the URL; secrets come from the environment or from files "
+            "(see docs/configuration.md, Secrets and environment)"
+        )
+        out.append(
+            ConfigIssue(
+                file,
+                key_path,
+                f"a URL carries a secret in {', '.join(where)} (the value is not shown)",
+                fix,
+            )
+        )
+    return out
 
 
 #: Named SI units of the dimensions that have one in our measurement schema.

@@ -67,6 +67,7 @@ def run(args: argparse.Namespace, out: TextIO | None = None, err: TextIO | None 
 
     from daemon.config import PlantConfigError, load_plant
     from daemon.storage import Store, redact_url
+    from daemon.urls import mask_urls
 
     out = out if out is not None else sys.stdout
     err = err if err is not None else sys.stderr
@@ -78,7 +79,7 @@ def run(args: argparse.Namespace, out: TextIO | None = None, err: TextIO | None 
         print(f"FAILED: {len(exc.issues)} problem(s) in {args.config}", file=err)
         return 1
     url = plant.database.url
-    store = Store(url)
+    store = Store.from_config(plant.database)
     try:
         if args.action == "upgrade":
             before = store.current_revision()
@@ -111,7 +112,8 @@ def run(args: argparse.Namespace, out: TextIO | None = None, err: TextIO | None 
         print(f"{verb}: {detail}", file=out)
         return 0
     except SQLAlchemyError as exc:
-        print(f"database error ({redact_url(url)}): {exc.__class__.__name__}: {exc}", file=err)
+        why = mask_urls(str(exc))
+        print(f"database error ({redact_url(url)}): {exc.__class__.__name__}: {why}", file=err)
         return 1
     finally:
         store.close()

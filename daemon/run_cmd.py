@@ -3,8 +3,9 @@
 Loads and validates the plant file, then runs :class:`daemon.runtime.Runtime` until SIGTERM or
 SIGINT, drains within ``--stop-timeout`` seconds and exits 0.  Logs are JSON objects, one per
 line, on standard error (``ts``, ``level``, ``logger``, ``msg`` and any extra fields), so journald
-or a log shipper can parse them; secrets are never logged (the database URL is shown with its
-password replaced).
+or a log shipper can parse them; secrets are never logged: every URL in a message or an
+exception is masked (:func:`daemon.urls.mask_urls`: password and secret query parameters
+replaced by ``***``).
 
 Exit codes: 0 clean stop; 2 plant file not usable (each problem printed with its fix); 1 the
 runtime failed (configuration refused by the feed, HTTP port unavailable ...).
@@ -24,7 +25,9 @@ import time
 from datetime import UTC, datetime
 from typing import Any
 
-__all__ = ["JsonFormatter", "add_parser", "configure_logging", "run"]
+from daemon.urls import mask_urls
+
+__all__ = ["JsonFormatter", "MaskingFormatter", "add_parser", "configure_logging", "run"]
 
 _STD_ATTRS = frozenset(
     logging.LogRecord("", 0, "", 0, "", (), None).__dict__.keys() | {"message", "asctime"}
@@ -32,21 +35,29 @@ _STD_ATTRS = frozenset(
 
 
 class JsonFormatter(logging.Formatter):
-    """Format a log record as one JSON object per line."""
+    """Format a log record as one JSON object per line (every URL in it masked)."""
 
     def format(self, record: logging.LogRecord) -> str:
         doc: dict[str, Any] = {
             "ts": datetime.fromtimestamp(record.created, UTC).isoformat(timespec="milliseconds"),
             "level": record.levelname.lower(),
             "logger": record.name,
-            "msg": record.getMessage(),
+            "msg": mask_urls(record.getMessage()),
         }
         for k, v in record.__dict__.items():
             if k not in _STD_ATTRS and not k.startswith("_"):
-                doc[k] = v if isinstance(v, str | int | float | bool | None) else repr(v)
+                plain = v if isinstance(v, str | int | float | bool | None) else repr(v)
+                doc[k] = mask_urls(plain) if isinstance(plain, str) else plain
         if record.exc_info:
-            doc["exc"] = self.formatException(record.exc_info)
+            doc["exc"] = mask_urls(self.formatException(record.exc_info))
         return json.dumps(doc, ensure_ascii=False, default=str)
+
+
+class MaskingFormatter(logging.Formatter):
+    """A plain-text formatter that masks every URL of the formatted line."""
+
+    def format(self, record: logging.LogRecord) -> str:
+        return mask_urls(super().format(record))
 
 
 def configure_logging(level: str = "info", fmt: str = "json") -> None:
@@ -55,7 +66,7 @@ def configure_logging(level: str = "info", fmt: str = "json") -> None:
     if fmt == "json":
         handler.setFormatter(JsonFormatter())
     else:
-        handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
+        handler.setFormatter(MaskingFormatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
     root = logging.getLogger()
     for h in list(root.handlers):
         root.removeHandler(h)

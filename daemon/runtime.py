@@ -15,11 +15,19 @@ Tasks (one :class:`asyncio.TaskGroup`, all stopped together)::
     http       uvicorn serving daemon.http.create_app in this event loop
 
 Durability: a message is acknowledged to the broker only after its readings (and its
-quarantined items) are committed.  While the database is down, commits fail, nothing is
+quarantined items) are committed.  A commit refused for its data while the database answers
+(:func:`daemon.storage.refused_data` and a ping) raises :class:`daemon.types.UnstorableError`:
+the feed isolates the offending message and quarantines it as ``unstorable``; the database
+stays reported up.  While the database is down, commits fail, nothing is
 acknowledged, the broker keeps the messages in the persistent session and the feed reconnects
 to have them sent again; readiness turns false within ``db_probe_s`` seconds.  Result rows that
 cannot be written wait in a bounded in-memory buffer (:data:`MAX_PENDING_RESULTS`) and are
 written with the next tick; results can also be recomputed from the stored readings.
+
+Subscriptions: the filters subscribed under the broker client id are remembered in the
+database (``broker_subscriptions``) before they are subscribed; filters remembered from an
+earlier plant file are unsubscribed after the current ones are subscribed, then forgotten
+(a persistent session would otherwise keep delivering them; MQTT cannot list them).
 
 Warm start: on start the assembler is primed from the readings stored in the last
 ``max_age_s`` of each tag, so a restart (or a crash after a commit but before the in-memory
@@ -55,9 +63,9 @@ from daemon.feeds.decode import Batch, Decoder
 from daemon.feeds.mqtt import MqttFeed
 from daemon.metrics import Metrics
 from daemon.publish import ResultPublisher, result_topic
-from daemon.storage import ResultRow, Store, redact_url
+from daemon.storage import ResultRow, Store, redact_url, refused_data
 from daemon.storage import schema as db_schema
-from daemon.types import Reading
+from daemon.types import Reading, UnstorableError
 from models.status import WARNING_REASONS, reason_names
 
 __all__ = [
@@ -123,6 +131,14 @@ def result_row(
     )
 
 
+def _error_text(exc: BaseException) -> str:
+    """One line naming an error: its class and the first line of the driver's message."""
+    orig = getattr(exc, "orig", None)
+    cause = orig if isinstance(orig, BaseException) else exc
+    lines = str(cause).splitlines()
+    return f"{cause.__class__.__name__}: {lines[0] if lines else ''}"[:300]
+
+
 def _num(v: Any) -> float | None:
     if v is None:
         return None
@@ -159,7 +175,7 @@ class Runtime:
     plant : daemon.config.PlantConfig
         Loaded plant file.
     store : Store, optional
-        Database; ``Store(plant.database.url)`` by default.
+        Database; ``Store.from_config(plant.database)`` by default.
     registry : CollectorRegistry, optional
         Metrics registry; a fresh one by default.
     clock : callable
@@ -194,7 +210,7 @@ class Runtime:
         self.metrics = Metrics(
             self.registry, list(plant.units), site=self.site, version=__version__, clock=clock
         )
-        self.store = store if store is not None else Store(plant.database.url)
+        self.store = store if store is not None else Store.from_config(plant.database)
         self.decoder = Decoder.from_plant(plant)
         self.assembler = Assembler.from_plant(plant, clock=clock)
         self.bindings: dict[str, UnitBinding] = bindings_from_plant(plant)
@@ -215,6 +231,7 @@ class Runtime:
             username=plant.broker.username or None,
             password=secret,
             tls_context=tls,
+            on_retired=self._forget_filters,
             **dict(feed_options or {}),
         )
         self.publisher: ResultPublisher | None = (
@@ -348,6 +365,27 @@ class Runtime:
     def _prepare_db_sync(self) -> None:
         self.store.upgrade()
         self.store.upsert_units(self.plant.units)
+        self._reconcile_subscriptions()
+
+    def _reconcile_subscriptions(self) -> None:
+        """Remember the current filters under the client id (before subscribing them) and
+        hand the feed those remembered from an earlier plant file, to unsubscribe."""
+        client_id = self.plant.broker.client_id
+        previous = self.store.subscriptions(client_id)
+        self.store.remember_subscriptions(client_id, self.filters)
+        stale = [f for f in previous if f not in self.filters]
+        if stale:
+            log.info(
+                "%d subscription filter(s) of an earlier plant file will be unsubscribed: %s",
+                len(stale),
+                stale,
+            )
+        self.feed.retire(stale)
+
+    async def _forget_filters(self, filters: list[str]) -> None:
+        """The broker confirmed the unsubscribe of ``filters``: forget them."""
+        client_id = self.plant.broker.client_id
+        await asyncio.to_thread(self.store.forget_subscriptions, client_id, filters)
 
     async def _prepare_db(self) -> None:
         """Migrate and register units; retried until it works (the daemon never gives up)."""
@@ -397,6 +435,11 @@ class Runtime:
         try:
             await asyncio.to_thread(self._write_batch, batch)
         except Exception as exc:
+            # refused data on a database that answers: the message, not the database, is the
+            # problem (the feed isolates and quarantines it); anything else is an outage
+            if refused_data(exc) and await asyncio.to_thread(self.store.ping):
+                self._set_db(True)
+                raise UnstorableError(_error_text(exc)) from exc
             self._set_db(False, f"commit failed: {exc.__class__.__name__}")
             raise
         self._set_db(True)

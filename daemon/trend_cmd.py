@@ -749,6 +749,7 @@ def run(args: argparse.Namespace, out: TextIO | None = None, err: TextIO | None 
     from daemon.http import parse_time
     from daemon.runtime import row_to_api
     from daemon.storage import Store
+    from daemon.urls import mask_urls
 
     out = out if out is not None else sys.stdout
     err = err if err is not None else sys.stderr
@@ -775,7 +776,7 @@ def run(args: argparse.Namespace, out: TextIO | None = None, err: TextIO | None 
         return 2
     kpi = KPIS[args.kpi]
     record = TrendRecord(kpi, max_gap_s=args.max_gap)
-    store = Store(plant.database.url)
+    store = Store.from_config(plant.database)
     started = time.perf_counter()
     try:
 
@@ -784,7 +785,8 @@ def run(args: argparse.Namespace, out: TextIO | None = None, err: TextIO | None 
 
         collect(fetch, args.unit, t0.timestamp(), t1.timestamp(), record)
     except Exception as exc:
-        print(f"brayscope trend: cannot read results: {exc.__class__.__name__}: {exc}", file=err)
+        why = mask_urls(str(exc))
+        print(f"brayscope trend: cannot read results: {exc.__class__.__name__}: {why}", file=err)
         return 1
     finally:
         store.close()

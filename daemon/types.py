@@ -7,6 +7,10 @@
     its reason code from :data:`QUARANTINE_REASONS`.
 ``Snapshot``
     a unit's canonical measurements at one tick, with per-measurement quality bits and ages.
+``UnstorableError``
+    raised by a commit when the database is up but refused the data of a batch (a value it
+    cannot hold): the feed then isolates the offending message and quarantines it as
+    ``unstorable`` instead of treating the database as down.
 
 These are plain frozen dataclasses with no behaviour, so every layer (and every test) can build
 them directly.
@@ -23,6 +27,7 @@ __all__ = [
     "Quarantined",
     "Reading",
     "Snapshot",
+    "UnstorableError",
 ]
 
 #: The fixed, bounded set of quarantine reason codes.  They are also the values of the
@@ -48,8 +53,20 @@ QUARANTINE_REASONS: Final[frozenset[str]] = frozenset(
         "unknown_alias",
         "unsupported_datatype",
         "null_value",
+        # a message the database refused to store (isolated by the feed)
+        "unstorable",
     }
 )
+
+
+class UnstorableError(Exception):
+    """The database answered but refused (part of) a batch: a value it cannot hold.
+
+    Not a database outage: the offending message is quarantined as ``unstorable`` and the
+    rest of the batch is committed and acknowledged.  A commit that fails because the
+    database is unreachable raises the database error itself, never this.
+    """
+
 
 #: Quality strings a :class:`Reading` may carry.
 QUALITY_VALUES: Final[frozenset[str]] = frozenset({"good", "uncertain", "bad"})
@@ -152,7 +169,8 @@ class Snapshot:
     quality : dict of str to int
         :class:`models.status.Reason` bits per measurement (``INPUT_STALE``,
         ``INPUT_BAD_QUALITY``, ``INPUT_MISSING``, ``INPUT_NONPHYSICAL``, ``INPUT_STUCK``,
-        ``INPUT_DISAGREE``); 0 when usable.
+        ``INPUT_DISAGREE``); 0 when usable, or the warning bit ``CLOCK_AHEAD`` alone (usable,
+        but the source clock of the held value was ahead of the receive clock).
     age_s : dict of str to float
         Age of the held value at ``ts`` [s]; NaN when no value was ever received.
     steady : bool or None

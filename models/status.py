@@ -81,6 +81,7 @@ class Reason(IntFlag):
     INPUT_STUCK = 1 << 17  # set by the daemon: a sensor's value has not moved for too long
     INPUT_DISAGREE = 1 << 18  # set by the daemon: redundant sensors differ beyond max_spread
     PEAK_PRESSURE_CLIPPED = 1 << 19  # ideal dual cycle: measured peak pressure unusable as given
+    CLOCK_AHEAD = 1 << 20  # set by the daemon: a held input's source clock ran ahead (warning)
 
 
 #: Reasons that are warnings: the number is computed but deserves a look.
@@ -91,6 +92,7 @@ WARNING_REASONS = (
     | Reason.CORRECTION_UNAVAILABLE
     | Reason.HUMIDITY_SATURATED
     | Reason.PEAK_PRESSURE_CLIPPED
+    | Reason.CLOCK_AHEAD
 )
 
 

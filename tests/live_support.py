@@ -18,6 +18,7 @@ import subprocess
 import sys
 import threading
 import time
+import uuid
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -241,6 +242,7 @@ def plant_toml(
     queue_size: int = 10000,
     subscriptions: str = "exact",
     session_expiry_s: int = 3600,
+    protocol: str = "5",
 ) -> str:
     """A plant file for tests: every measurement of the contract on its own topic."""
     out = [
@@ -250,7 +252,7 @@ def plant_toml(
         "[broker]",
         'host = "127.0.0.1"',
         f"port = {broker_port}",
-        'protocol = "5"',
+        f'protocol = "{protocol}"',
         f'client_id = "{client_id}"',
         "qos = 1",
         "keepalive_s = 5",
@@ -293,6 +295,37 @@ def plant_toml(
                 "",
             ]
     return "\n".join(out) + "\n"
+
+
+def write_plant(
+    directory: Path,
+    *,
+    database_url: str,
+    broker_port: int = 1883,
+    name: str = "plant.toml",
+    prefix: str | None = None,
+    client_id: str | None = None,
+    edit: Callable[[str], str] | None = None,
+    **kw: Any,
+) -> tuple[Path, str, str]:
+    """Write a :func:`plant_toml` file (a fresh topic prefix and client id unless given, a free
+    HTTP port, sessions the shared broker forgets after 120 s); ``edit`` may change the text.
+
+    Returns
+    -------
+    (Path, str, str)
+        The file, the topic prefix and the client id.
+    """
+    prefix = prefix or f"bstest/{uuid.uuid4().hex[:10]}"
+    client_id = client_id or f"bs-test-{uuid.uuid4().hex[:8]}"
+    kw.setdefault("http_port", free_port())
+    kw.setdefault("session_expiry_s", 120)
+    text = plant_toml(
+        prefix=prefix, broker_port=broker_port, database_url=database_url, client_id=client_id, **kw
+    )
+    path = directory / name
+    path.write_text(edit(text) if edit is not None else text)
+    return path, prefix, client_id
 
 
 def payload(measurement: str, si_value: float, ts: float, **extra: Any) -> bytes:

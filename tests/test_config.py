@@ -299,7 +299,7 @@ def test_all_errors_reported_at_once_by_check(
             'url = "sqlite:///./brayscope-data/brayscope.sqlite"',
             'url = "postgresql+psycopg://bray:hunter2@db/brayscope"',
             "database.url",
-            "BRAYSCOPE_DATABASE_URL",
+            "BRAYSCOPE_DATABASE_PASSWORD",
         ),
     ],
 )
@@ -386,9 +386,9 @@ def test_db_commands(
     monkeypatch.setenv("BRAYSCOPE_DATABASE_URL", store_url)
     assert cli.main(["db", "current", "-c", str(EXAMPLE)]) == 3  # empty: behind
     assert cli.main(["db", "upgrade", "-c", str(EXAMPLE)]) == 0
-    assert "-> 0002" in capsys.readouterr().out
+    assert "-> 0003_rel" in capsys.readouterr().out
     assert cli.main(["db", "current", "-c", str(EXAMPLE)]) == 0
-    assert "revision: 0002 (head 0002, up to date)" in capsys.readouterr().out
+    assert "revision: 0003_rel (head 0003_rel, up to date)" in capsys.readouterr().out
     assert cli.main(["db", "purge", "-c", str(EXAMPLE), "--days", "30", "--dry-run"]) == 0
     out = capsys.readouterr().out
     assert "would delete: 0 results (older than 30 days), 0 readings (older than 30 days)" in out

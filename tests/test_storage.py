@@ -66,7 +66,7 @@ def test_migrations_from_empty_match_the_schema(store_url: str) -> None:
     try:
         assert st.current_revision() is None
         st.upgrade()
-        assert st.current_revision() == st.head_revision() == "0002"
+        assert st.current_revision() == st.head_revision() == "0003_rel"
         with st.engine.connect() as conn:
             tables = set(sa.inspect(conn).get_table_names())
             assert {"units", "results", "readings", "quarantine", "events"} <= tables
@@ -75,7 +75,7 @@ def test_migrations_from_empty_match_the_schema(store_url: str) -> None:
             )
         assert diff == []
         st.upgrade()  # a second run is a no-op
-        assert st.current_revision() == "0002"
+        assert st.current_revision() == "0003_rel"
     finally:
         st.close()
 
@@ -92,7 +92,7 @@ def test_parallel_upgrades_do_not_collide(store_url: str) -> None:
     assert [p.returncode for p in procs] == [0, 0, 0, 0], errors
     st = Store(store_url)
     try:
-        assert st.current_revision() == "0002"
+        assert st.current_revision() == "0003_rel"
     finally:
         st.close()
 
@@ -516,7 +516,7 @@ def test_upgrade_from_0001_keeps_old_quarantine_rows(store_url: str) -> None:
         with st.engine.begin() as conn:  # two identical rows, as 0001 allowed
             conn.execute(sa.insert(schema.quarantine), [old, old])
         st.upgrade()
-        assert st.current_revision() == "0002"
+        assert st.current_revision() == "0003_rel"
         rows = st.quarantine_rows(10)
         assert len(rows) == 2 and all(r["natural_key"] is None for r in rows)
         q = Quarantined(T0, "kestrel/gt1/TT-AMB", b"{", "malformed_json", "line 1", None)

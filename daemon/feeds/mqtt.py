@@ -32,6 +32,24 @@ Overflow policy (inbound queue of ``broker.queue_size``):
 
 QoS 2 is refused at construction: paho answers PUBREC before the application sees the message,
 so it cannot be held back until the commit.
+
+A message the database cannot store (a *poison* message) never blocks a batch: when the commit
+raises :class:`daemon.types.UnstorableError` (the database answered but refused the data) the
+batch is split in halves, each half committed on its own, recursively, until the offending
+messages are single; each of those is committed instead as one quarantined item with reason
+``unstorable`` (its payload kept), and then the whole batch is acknowledged in arrival order.
+Any other commit error is treated as the database being unavailable (retry, then reconnect for
+redelivery; nothing acknowledged).
+
+Subscriptions of a persistent session outlive the plant file that made them, and MQTT cannot
+list them.  Two measures keep the session to the current filters: :meth:`MqttFeed.retire`
+names filters known to be stale (the runtime remembers every filter it subscribed under the
+client id in the database); after subscribing the current filters, each connection
+unsubscribes the retired ones and reports them through ``on_retired``.  And a message whose
+topic matches none of the current filters (so it came through a subscription nobody
+remembers, e.g. one made before the filters were recorded) makes the feed unsubscribe the
+filters it could have come through (:func:`stale_filter_candidates`), once per topic.  The
+message itself is still quarantined as ``unknown_topic``.
 """
 
 from __future__ import annotations
@@ -51,7 +69,8 @@ from paho.mqtt.packettypes import PacketTypes
 from paho.mqtt.properties import Properties
 from paho.mqtt.subscribeoptions import SubscribeOptions
 
-from daemon.feeds.decode import Batch, Decoder, SequenceTracker
+from daemon.feeds.decode import Batch, Decoder, DecodeResult, SequenceTracker
+from daemon.types import Quarantined, UnstorableError
 
 __all__ = [
     "BrokerLike",
@@ -61,6 +80,7 @@ __all__ = [
     "MqttFeedError",
     "backoff_delay",
     "derive_filters",
+    "stale_filter_candidates",
 ]
 
 log = logging.getLogger("brayscope.feeds.mqtt")
@@ -205,6 +225,37 @@ def derive_filters(topics: Sequence[str]) -> list[str]:
     return sorted(out)
 
 
+def stale_filter_candidates(topic: str, current: Sequence[str]) -> list[str]:
+    """Filters a message on ``topic`` could have come through, among those brayscope
+    subscribes (an exact topic, ``parent/+``, ``prefix/#``, ``#``), minus ``current``.
+
+    Parameters
+    ----------
+    topic : str
+        Topic of a message that matches none of the current filters.
+    current : sequence of str
+        The filters subscribed now (never in the answer).
+
+    Returns
+    -------
+    list of str
+        Candidates, most specific first.
+
+    Examples
+    --------
+    >>> stale_filter_candidates("kestrel/gt1/TT-OLD", ["kestrel/gt1/TT-AMB"])
+    ['kestrel/gt1/TT-OLD', 'kestrel/gt1/+', 'kestrel/gt1/#', 'kestrel/#', '#']
+    """
+    levels = topic.split("/")
+    out = [topic]
+    if len(levels) > 1:
+        out.append("/".join([*levels[:-1], "+"]))
+    out += ["/".join([*levels[:k], "#"]) for k in range(len(levels) - 1, 0, -1)]
+    out.append("#")
+    keep = set(current)
+    return [f for f in dict.fromkeys(out) if f not in keep]
+
+
 def backoff_delay(
     attempt: int, *, initial_s: float, cap_s: float, rng: Callable[[], float]
 ) -> float:
@@ -242,7 +293,9 @@ class MqttFeed:
         Makes the batch's readings and quarantined items durable (the runtime passes the
         storage write).  The feed acknowledges the batch's messages only after it returns.
         It is retried ``commit_attempts`` times with backoff; then the feed reconnects so the
-        broker redelivers.
+        broker redelivers.  When it raises :class:`daemon.types.UnstorableError` the
+        offending messages are isolated and quarantined as ``unstorable`` (see the module
+        notes) instead.
     stats : FeedStats, optional
         Counters; :class:`MemoryFeedStats` when omitted.
     username, password : str, optional
@@ -263,6 +316,9 @@ class MqttFeed:
         Reconnect/commit-retry backoff [s].
     connect_timeout_s : float
         Timeout of one connect / subscribe attempt [s].
+    on_retired : async callable(list of str) -> None, optional
+        Called once the broker confirmed the unsubscribe of filters named by :meth:`retire`
+        (the runtime forgets them in the database); its errors are logged, never raised.
     clock : callable
         Wall clock [s since the epoch] for receive times (injected for tests).
     rng : callable
@@ -295,6 +351,7 @@ class MqttFeed:
         backoff_initial_s: float = 0.5,
         backoff_cap_s: float = 30.0,
         connect_timeout_s: float = 10.0,
+        on_retired: Callable[[list[str]], Awaitable[None]] | None = None,
         clock: Callable[[], float] = time.time,
         rng: Callable[[], float] = random.random,
     ) -> None:
@@ -344,6 +401,12 @@ class MqttFeed:
         self._connected = asyncio.Event()
         self._task: asyncio.Task[None] | None = None
         self._session_committed = False
+        self._retire: list[str] = []
+        self._on_retired = on_retired
+        self._client: aiomqtt.Client | None = None
+        self._stray_topics: set[str] = set()
+        self._stray_filters: set[str] = set()
+        self._background: set[asyncio.Task[None]] = set()
 
     # -- public ----------------------------------------------------------------------------
 
@@ -361,6 +424,8 @@ class MqttFeed:
         swallowed by ``asyncio.wait_for`` (CPython gh-86296) inside aiomqtt or paho glue.
         Re-raises the error that stopped the feed, if any (not a cancellation).
         """
+        for t in list(self._background):
+            t.cancel()
         task = self._task
         if task is None:
             return
@@ -372,6 +437,11 @@ class MqttFeed:
             exc = task.exception()
             if exc is not None and not isinstance(exc, asyncio.CancelledError):
                 raise exc
+
+    def retire(self, filters: Sequence[str]) -> None:
+        """Unsubscribe ``filters`` (stale ones of the persistent session) after the next
+        subscribe; filters among the current ones are ignored."""
+        self._retire = [f for f in dict.fromkeys(filters) if f not in self.filters]
 
     @property
     def connected(self) -> bool:
@@ -556,6 +626,7 @@ class MqttFeed:
 
     async def _session(self) -> None:
         """One connection, until it ends (by an exception)."""
+        self._client = None
         client = self._make_client()
         gen = self._generation
         self._lost.clear()
@@ -576,6 +647,7 @@ class MqttFeed:
                 await client.subscribe(
                     [(f, self.broker.qos) for f in self.filters], timeout=self.connect_timeout_s
                 )
+            await self._unsubscribe_retired(client)
             self._connected.set()
             self.stats.connection_state(True)
             log.info(
@@ -585,6 +657,7 @@ class MqttFeed:
                 self.filters,
             )
             inner: paho.Client = client._client
+            self._client = client
             while True:
                 msgs = await self._collect(gen)
                 if msgs:
@@ -599,6 +672,61 @@ class MqttFeed:
                     raise _Reconnect("inbound queue overflowed; reconnecting for redelivery")
                 if self._lost.is_set() and self._inbound.empty():
                     raise _Reconnect("connection lost")
+
+    async def _unsubscribe_retired(self, client: aiomqtt.Client) -> None:
+        """Unsubscribe the retired filters (after the current ones are subscribed, so no
+        topic is uncovered in between); report them once the broker confirmed."""
+        todo = list(self._retire)
+        if not todo:
+            return
+        await client.unsubscribe(todo, timeout=self.connect_timeout_s)
+        self._retire = [f for f in self._retire if f not in todo]
+        log.info("unsubscribed %d filter(s) the plant file no longer has: %s", len(todo), todo)
+        if self._on_retired is not None:
+            try:
+                await self._on_retired(todo)
+            except Exception as exc:  # the next start unsubscribes them again: harmless
+                log.warning("could not record the unsubscribed filters: %s", exc)
+
+    def _unsubscribe_strays(self, results: Sequence[DecodeResult]) -> None:
+        """Unsubscribe, in the background, the filters a message matching no current filter
+        could have come through (once per topic and candidate)."""
+        client = self._client
+        if client is None:
+            return
+        topics: list[str] = []
+        todo: list[str] = []
+        for r in results:
+            if r.topic in self._stray_topics or not any(
+                q.reason == "unknown_topic" for q in r.quarantined
+            ):
+                continue
+            if any(paho.topic_matches_sub(f, r.topic) for f in self.filters):
+                continue  # a current filter brought it: nothing stale
+            topics.append(r.topic)
+            todo += stale_filter_candidates(r.topic, self.filters)
+        todo = [f for f in dict.fromkeys(todo) if f not in self._stray_filters]
+        self._stray_topics.update(topics)
+        if not todo:
+            return
+        self._stray_filters.update(todo)
+
+        async def go() -> None:
+            try:
+                await client.unsubscribe(todo, timeout=self.connect_timeout_s)
+                log.info(
+                    "messages came through a subscription the plant file does not have: "
+                    "unsubscribed %s",
+                    todo,
+                )
+            except Exception as exc:  # connection gone: try again when it comes back
+                self._stray_topics.difference_update(topics)
+                self._stray_filters.difference_update(todo)
+                log.warning("unsubscribing stale filters %s failed: %s", todo, exc)
+
+        task = asyncio.create_task(go(), name="mqtt-unsubscribe-stale")
+        self._background.add(task)
+        task.add_done_callback(self._background.discard)
 
     async def _collect(self, gen: int) -> list[_Inbound]:
         """Wait for messages and gather one micro-batch of this connection's messages.
@@ -665,11 +793,15 @@ class MqttFeed:
 
     async def _process(self, inner: paho.Client, msgs: list[_Inbound]) -> None:
         results = [self.decoder.decode(m.topic, m.payload, m.received_ts) for m in msgs]
-        batch = Batch.from_results(results, dups=sum(m.dup for m in msgs))
+        dups = sum(m.dup for m in msgs)
+        batch = Batch.from_results(results, dups=dups)
         t0 = time.perf_counter()
         for attempt in range(self.commit_attempts):
             try:
-                await self._commit(batch)
+                isolated = await self._commit_isolating(msgs, results, batch)
+                if isolated is not None:
+                    results = isolated
+                    batch = Batch.from_results(results, dups=dups)
                 break
             except asyncio.CancelledError:
                 raise
@@ -707,4 +839,58 @@ class MqttFeed:
             missing = self.sequences.observe(r.topic, r.seq)
             if missing:
                 self.stats.sequence_gap(self.decoder.unit_of(r.topic), missing)
+        if batch.quarantined:
+            self._unsubscribe_strays(results)
         await self._out.put((batch, last_seq, len(msgs)))
+
+    async def _commit_isolating(
+        self, msgs: list[_Inbound], results: list[DecodeResult], batch: Batch
+    ) -> list[DecodeResult] | None:
+        """Commit ``batch``; None when it went in whole, else the results actually committed
+        (the messages the database refused replaced by their ``unstorable`` quarantine)."""
+        try:
+            await self._commit(batch)
+            return None
+        except UnstorableError as exc:
+            log.warning(
+                "the database refused the data of a batch of %d messages (%s): isolating "
+                "the message(s) it cannot store",
+                len(msgs),
+                exc,
+            )
+            return await self._isolate(msgs, results, exc)
+
+    async def _isolate(
+        self, msgs: list[_Inbound], results: list[DecodeResult], exc: UnstorableError
+    ) -> list[DecodeResult]:
+        """Bisect a refused part of a batch; quarantine every single message still refused."""
+        if len(results) == 1:
+            item = self._unstorable(msgs[0], results[0], exc)
+            await self._commit(Batch.from_results([item]))
+            log.warning(
+                "message on %r quarantined as unstorable: %s", msgs[0].topic[:200], str(exc)
+            )
+            return [item]
+        mid = len(results) // 2
+        out: list[DecodeResult] = []
+        for part_m, part_r in ((msgs[:mid], results[:mid]), (msgs[mid:], results[mid:])):
+            try:
+                await self._commit(Batch.from_results(part_r))
+                out.extend(part_r)
+            except UnstorableError as part_exc:
+                out.extend(await self._isolate(part_m, part_r, part_exc))
+        return out
+
+    def _unstorable(self, m: _Inbound, r: DecodeResult, exc: UnstorableError) -> DecodeResult:
+        """The whole message as one quarantined item (counted as one received item); its
+        texts are plain printable ASCII, so this row itself can always be stored."""
+        detail = f"the database refused this message: {exc}"[:500]
+        q = Quarantined(
+            received_ts=m.received_ts,
+            topic=m.topic,
+            payload=m.payload[: self.decoder.limits.quarantine_payload_limit],
+            reason="unstorable",
+            detail=detail.encode("ascii", "backslashreplace").decode("ascii").replace("\x00", ""),
+            unit=self.decoder.unit_of(m.topic),
+        )
+        return DecodeResult(m.topic, 1, (), (q,), r.seq)

@@ -13,6 +13,8 @@ from daemon.storage.store import (
     UnitLike,
     quarantine_key,
     redact_url,
+    refused_data,
+    storable_datetime,
 )
 
 __all__ = [
@@ -24,4 +26,6 @@ __all__ = [
     "UnitLike",
     "quarantine_key",
     "redact_url",
+    "refused_data",
+    "storable_datetime",
 ]

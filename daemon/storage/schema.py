@@ -17,6 +17,9 @@ Tables
 ``quarantine``  rejected inputs: truncated payload bytes, topic, reason code, detail; unique
                 on ``natural_key`` (a redelivered message is stored once)
 ``events``      daemon events (start, stop, reconnect, database outage ...)
+``broker_subscriptions``  the MQTT topic filters subscribed under each client id (migration
+                0003_rel): a persistent session keeps its subscriptions and MQTT cannot list
+                them, so the daemon remembers them to unsubscribe those a new plant file drops
 """
 
 from __future__ import annotations
@@ -34,6 +37,7 @@ __all__ = [
     "RESULT_LABEL_COLUMNS",
     "RESULT_VALUE_COLUMNS",
     "UTCDateTime",
+    "broker_subscriptions",
     "events",
     "metadata",
     "quarantine",
@@ -227,4 +231,12 @@ events = sa.Table(
     sa.Column("kind", sa.String(64), nullable=False),
     sa.Column("detail", sa.Text(), nullable=False, server_default=""),
     sa.Index(None, "ts"),
+)
+
+broker_subscriptions = sa.Table(
+    "broker_subscriptions",
+    metadata,
+    sa.Column("client_id", sa.String(128), primary_key=True),
+    sa.Column("topic_filter", sa.Text(), primary_key=True),
+    sa.Column("subscribed_at", UTCDateTime(), nullable=False),
 )

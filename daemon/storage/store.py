@@ -37,6 +37,7 @@ from sqlalchemy.engine import URL, Connection, Engine, make_url
 from sqlalchemy.pool import StaticPool
 
 from daemon.storage import schema as s
+from daemon.urls import mask_url
 
 __all__ = [
     "MAX_DETAIL_CHARS",
@@ -49,6 +50,8 @@ __all__ = [
     "UnitLike",
     "quarantine_key",
     "redact_url",
+    "refused_data",
+    "storable_datetime",
 ]
 
 #: Bytes of a rejected payload kept in the quarantine table.
@@ -194,9 +197,10 @@ class ResultRow:
 
 
 def redact_url(url: str | URL) -> str:
-    """Return ``url`` with any password replaced by ``***`` (safe to log)."""
+    """Return ``url`` with its password and every secret query parameter (``password``,
+    ``sslpassword``, ``token`` ...) replaced by ``***`` (safe to print and log)."""
     try:
-        return make_url(url).render_as_string(hide_password=True)
+        return mask_url(make_url(url).render_as_string(hide_password=True))
     except Exception:
         return "<unparsable database URL>"
 
@@ -218,6 +222,10 @@ class Store:
         ``postgresql+psycopg://user@host/db``.
     schema : str, optional
         PostgreSQL only: use this schema (created by :meth:`upgrade`) via ``search_path``.
+    password : str, optional
+        Password added to the URL's user part (the plant file's ``database.password_file`` or
+        ``BRAYSCOPE_DATABASE_PASSWORD``); the URL itself carries none.  Never shown:
+        :func:`redact_url` masks it.
     busy_timeout_ms : int
         SQLite: how long a writer waits for the lock [ms].
     connect_timeout_s : int
@@ -231,11 +239,14 @@ class Store:
         url: str,
         *,
         schema: str | None = None,
+        password: str | None = None,
         busy_timeout_ms: int = 10_000,
         connect_timeout_s: int = 5,
         echo: bool = False,
     ) -> None:
         self.url = make_url(url)
+        if password:
+            self.url = self.url.set(password=password)
         self.schema = schema
         backend = self.url.get_backend_name()
         if backend not in ("sqlite", "postgresql"):
@@ -274,6 +285,14 @@ class Store:
                     cur.execute("PRAGMA foreign_keys=ON")
                 finally:
                     cur.close()
+
+    @classmethod
+    def from_config(cls, database: Any, **kwargs: Any) -> Store:
+        """The store of a plant file's ``[database]`` (``daemon.config.DatabaseConfig``: its
+        ``url`` and, when given, its ``password``)."""
+        secret = getattr(database, "password", None)
+        password = secret.get_secret_value() if secret is not None else None
+        return cls(database.url, password=password, **kwargs)
 
     # -- lifecycle -----------------------------------------------------------------------------
 
@@ -525,7 +544,7 @@ class Store:
                 "detail": (q.detail or "")[:MAX_DETAIL_CHARS],
                 "unit": q.unit,
                 "measurement": getattr(q, "measurement", None),
-                "source_ts": _optional_ts(getattr(q, "source_ts", None)),
+                "source_ts": storable_datetime(getattr(q, "source_ts", None)),
                 "natural_key": quarantine_key(q),
             }
             for q in items
@@ -544,6 +563,41 @@ class Store:
         }
         with self.engine.begin() as conn:
             conn.execute(sa.insert(s.events), [row])
+
+    # -- broker subscriptions ----------------------------------------------------------------
+
+    def subscriptions(self, client_id: str) -> list[str]:
+        """The MQTT topic filters remembered as subscribed under ``client_id``, sorted."""
+        c = s.broker_subscriptions.c
+        q = sa.select(c.topic_filter).where(c.client_id == client_id).order_by(c.topic_filter)
+        with self.engine.connect() as conn:
+            return [str(f) for f in conn.execute(q).scalars()]
+
+    def remember_subscriptions(self, client_id: str, filters: Iterable[str]) -> int:
+        """Record ``filters`` as subscribed under ``client_id`` (before subscribing, so the
+        record never misses a subscription the broker holds); returns how many were new."""
+        now = datetime.now(UTC)
+        rows = [
+            {"client_id": client_id, "topic_filter": f, "subscribed_at": now}
+            for f in dict.fromkeys(filters)
+        ]
+        if not rows:
+            return 0
+        with self.engine.begin() as conn:
+            return self._insert_ignore(conn, s.broker_subscriptions, rows)
+
+    def forget_subscriptions(self, client_id: str, filters: Iterable[str]) -> int:
+        """Drop ``filters`` of ``client_id`` (after the broker confirmed the unsubscribe);
+        returns how many rows went."""
+        names = list(dict.fromkeys(filters))
+        if not names:
+            return 0
+        c = s.broker_subscriptions.c
+        stmt = s.broker_subscriptions.delete().where(
+            c.client_id == client_id, c.topic_filter.in_(names)
+        )
+        with self.engine.begin() as conn:
+            return int(conn.execute(stmt).rowcount)
 
     # -- reads ---------------------------------------------------------------------------------
 
@@ -680,8 +734,49 @@ def _sqlite_busy(exc: sa.exc.OperationalError) -> bool:
     return "locked" in text or "busy" in text
 
 
-def _optional_ts(ts: float | datetime | None) -> datetime | None:
-    return None if ts is None else s.to_utc_datetime(ts)
+def storable_datetime(ts: float | datetime | None) -> datetime | None:
+    """``ts`` as an aware UTC datetime, or None when it has none: absent, not finite, or
+    outside the years 1..9999 that a Python ``datetime`` (and so a row) can hold.
+
+    A rejected input keeps its receive time; a source time that cannot be represented (a
+    poison timestamp such as ``1e300`` or year 10000 in UTC) is left out of the row instead
+    of making the whole write fail.
+    """
+    if ts is None:
+        return None
+    try:
+        return s.to_utc_datetime(ts)
+    except (ValueError, OverflowError, OSError):
+        return None
+
+
+#: SQLAlchemy errors that mean "these values were refused" rather than "the database is
+#: unreachable or broken": bad data (out of range, NUL in text ...) and constraint violations.
+_DATA_ERRORS: tuple[type[BaseException], ...] = (sa.exc.DataError, sa.exc.IntegrityError)
+#: Python errors raised while turning values into rows (an unrepresentable datetime ...).
+_VALUE_ERRORS: tuple[type[BaseException], ...] = (
+    ValueError,
+    OverflowError,
+    TypeError,
+    UnicodeError,
+)
+
+
+def refused_data(exc: BaseException) -> bool:
+    """True when a failed write was refused because of its *data* (the database itself may be
+    fine), False for everything that points at the database (connection lost, refused,
+    timed out, disk full, locked, missing table ...).
+
+    The caller still asks the database (:meth:`Store.ping`) before it treats a failure as
+    bad data: "refused data" on a database that does not answer is an outage.
+    """
+    if isinstance(exc, sa.exc.DBAPIError):
+        return isinstance(exc, _DATA_ERRORS) and not exc.connection_invalidated
+    if isinstance(exc, sa.exc.StatementError):  # a bind parameter failed to convert
+        return isinstance(exc.orig, _VALUE_ERRORS)
+    if isinstance(exc, sa.exc.SQLAlchemyError):
+        return False
+    return isinstance(exc, _VALUE_ERRORS)
 
 
 def _raw_text(raw: object) -> str | None:

@@ -54,6 +54,7 @@ from daemon.feeds.mqtt import backoff_delay
 from daemon.feeds.opcua.nodeid import NodeIdError, NodeIdSpec, NodeIdText
 from daemon.feeds.values import ValueChecker
 from daemon.types import Quarantined, Reading
+from daemon.urls import url_secrets
 
 __all__ = [
     "Connected",
@@ -235,6 +236,12 @@ class OpcUaEndpoint(BaseModel):
     @field_validator("url")
     @classmethod
     def _opc_tcp(cls, v: str) -> str:
+        where = url_secrets(v)
+        if where:  # checked first: the message below would show it
+            raise ValueError(
+                f"the endpoint URL carries a secret in {', '.join(where)} (not shown): give "
+                "the user name and password through the security settings instead"
+            )
         if not _URL.match(v):
             raise ValueError(f"endpoint {v[:120]!r} must look like opc.tcp://host:port/path")
         return v
