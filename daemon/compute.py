@@ -37,6 +37,7 @@ __all__ = [
     "bindings_from_plant",
     "compute_batch",
     "compute_tick",
+    "steady_state_word",
 ]
 
 log = logging.getLogger("brayscope.compute")
@@ -50,6 +51,15 @@ INPUT_REASONS = int(
     | Reason.INPUT_STUCK
     | Reason.INPUT_DISAGREE
 )
+
+
+def steady_state_word(steady: bool | None) -> str:
+    """The steady-state verdict as the one word used in the API, the page and the demo:
+    ``"steady"``, ``"transient"`` or ``"undecided"`` (the test is warming up, or a signal is
+    missing).  SQL stores it as a boolean (NULL undecided), the metric as 1, 0 or NaN."""
+    if steady is None:
+        return "undecided"
+    return "steady" if steady else "transient"
 
 
 @dataclass(frozen=True)
@@ -86,7 +96,7 @@ def bindings_from_plant(plant: Any) -> dict[str, UnitBinding]:
     for name, unit in plant.units.items():
         out[name] = UnitBinding(
             name=name,
-            unit_type=unit.unit_type,
+            unit_type=unit.unit_type_impl,
             fuel=unit.fuel_properties,
             fuel_key=json.dumps(unit.fuel.model_dump(), sort_keys=True),
             parameters=dict(unit.effective_parameters()),
@@ -117,7 +127,7 @@ class Result:
     input_quality : dict of str to int
         Quality bits per measurement from the snapshot.
     steady : bool or None
-        Steady-state flag of the snapshot.
+        Steady-state flag of the snapshot (None: undecided); see :func:`steady_state_word`.
     r_statistic : float or None
         R-statistic of the snapshot.
     deviations : dict of str to float
@@ -167,20 +177,13 @@ class Result:
             "status": self.status,
             "reasons": self.reasons,
             "warnings": self.warnings,
-            "steady": self.steady,
+            "steady_state": steady_state_word(self.steady),
             "r_statistic": num(self.r_statistic),
             "labels": dict(self.labels),
             "results": {k: num(v) for k, v in self.values.items()},
             "deviations": {k: num(v) for k, v in self.deviations.items()},
             "inputs": {k: num(v) for k, v in self.inputs.items()},
         }
-
-
-def _baseline_name(key: str, result_names: set[str]) -> str | None:
-    if key in result_names:
-        return key
-    alt = f"{key}_kJ_per_kWh"
-    return alt if alt in result_names else None
 
 
 def _param_group_key(b: UnitBinding) -> tuple[str, str, tuple[str, ...]]:
@@ -250,7 +253,6 @@ def _compute_group(
         log.error("compute of %s refused its static data: %s", sorted({s.unit for s in snaps}), exc)
         return {}
     status = np.asarray(co.status, dtype=np.uint32) | qual
-    result_names = {r.name for r in ut.results}
     results: dict[int, Result] = {}
     for j, s in enumerate(snaps):
         st = int(status[j])
@@ -265,9 +267,8 @@ def _compute_group(
         b = bindings[s.unit]
         deviations: dict[str, float] = {}
         for key, base in b.baseline.items():
-            rn = _baseline_name(key, result_names)
-            if rn is not None:
-                deviations[rn] = values[rn] - base
+            if key in values:  # baseline keys are result names (checked at load)
+                deviations[key] = values[key] - base
         results[idx[j]] = Result(
             unit=s.unit,
             unit_type=ut.name,

@@ -159,7 +159,7 @@ def plant_toml(
     for unit in units:
         out += [
             f"[units.{unit}]",
-            'type = "gas_turbine"',
+            'unit_type = "gas_turbine"',
             f'description = "test unit {unit}"',
             f"fuel = {FUEL}",
             f"parameters = {PARAMETERS.get(unit, PARAMETERS['KR-GT1'])}",

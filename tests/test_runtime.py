@@ -115,7 +115,7 @@ def test_batched_compute_equals_direct_calls_per_unit(tmp_path: Path) -> None:
             assert _same(r.values[k], v, 1e-12), (r.unit, k, r.values[k], v)
         assert r.valid, r.reasons
         # heat rate [kJ/kWh] = 3600 / thermal efficiency (definition; common practice)
-        hr, eta = r.values["heat_rate_kJ_per_kWh"], r.values["thermal_efficiency"]
+        hr, eta = r.values["heat_rate_lhv_kj_per_kwh"], r.values["thermal_efficiency"]
         assert hr * eta == pytest.approx(3600.0, rel=1e-9)
         # deviation from the configured baseline, in result units
         assert r.deviations["compressor_isentropic_efficiency"] == pytest.approx(
@@ -139,7 +139,7 @@ def test_unusable_inputs_are_never_used(tmp_path: Path) -> None:
     assert not stale.valid
     assert "input_stale" in stale.reasons
     # the heat rate needs no T2 (fuel flow, LHV and power only)
-    assert math.isfinite(stale.values["heat_rate_kJ_per_kWh"])
+    assert math.isfinite(stale.values["heat_rate_lhv_kj_per_kwh"])
     assert moving.status & Reason.NOT_STEADY
     assert moving.valid  # a transient is a warning, the numbers are computed
     assert "not_steady" in moving.warnings
