@@ -83,7 +83,9 @@ def test_example_snapshot_computes_ok_and_plausibly(capsys: pytest.CaptureFixtur
     # common practice: simple-cycle heat rate 8 600-11 000 kJ/kWh
     assert 8600.0 <= r["heat_rate_lhv_kj_per_kwh"] <= 11000.0
     # ISO 2314 / common practice: HR = 3600 m_f LHV / P and eta_th = P / (m_f LHV) agree
-    assert r["heat_rate_lhv_kj_per_kwh"] * r["thermal_efficiency"] == pytest.approx(3600.0, rel=1e-9)
+    assert r["heat_rate_lhv_kj_per_kwh"] * r["thermal_efficiency"] == pytest.approx(
+        3600.0, rel=1e-9
+    )
     m = snapshot()["measurements"]
     assert r["compressor_pressure_ratio"] == pytest.approx(
         m["compressor_discharge_pressure"] / m["compressor_inlet_pressure"], rel=1e-12

@@ -216,7 +216,9 @@ def test_invalid_fuel_is_rejected_by_models_fuel(tmp_path: Path) -> None:
 
 def test_unknown_unit_type_and_nonpositive_tick(tmp_path: Path) -> None:
     path = _variant(
-        tmp_path, ('unit_type = "gas_turbine"', 'unit_type = "gas_turbin"'), ("tick_s = 10.0", "tick_s = 0")
+        tmp_path,
+        ('unit_type = "gas_turbine"', 'unit_type = "gas_turbin"'),
+        ("tick_s = 10.0", "tick_s = 0"),
     )
     issues = _issues(path)
     assert "did you mean 'gas_turbine'" in _one(issues, "units.KR-GT1.unit_type").fix

@@ -69,7 +69,7 @@ def test_demo_exits_zero_and_prints_the_caution(demo_run) -> None:
 
 
 def test_banner_prints_the_subscribe_command_with_the_actual_port(demo_run) -> None:
-    proc, data = demo_run
+    proc, _ = demo_run
     port = int(re.search(r"mqtt://127\.0\.0\.1:(\d+)", proc.stdout).group(1))
     assert f"mosquitto_sub -h 127.0.0.1 -p {port} -t 'brayscope/kestrel-ridge/#' -v" in (
         proc.stdout

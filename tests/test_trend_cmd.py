@@ -274,7 +274,7 @@ def test_threshold_takes_a_fraction_or_a_percentage_and_refuses_a_bare_percent(
     eff = KPIS["compressor_isentropic_efficiency"]
     assert parse_threshold("0.85", eff) == parse_threshold("85%", eff) == pytest.approx(0.85)
     assert parse_threshold(" 85.5 % ", eff) == pytest.approx(0.855)
-    with pytest.raises(ValueError, match="write 0.85 or 85%"):
+    with pytest.raises(ValueError, match=r"write 0\.85 or 85%"):
         parse_threshold("85", eff)
     hr = KPIS["corrected_heat_rate_lhv_kj_per_kwh"]
     assert parse_threshold("10900", hr) == 10900.0

@@ -49,9 +49,13 @@ def test_round_trip_rates_from_generator() -> None:
     assert fit.n == 600 and fit.n_segments == 5
     # within an interval both parts act: slope = -(REC + NONREC)
     want_between = -(REC + NONREC) * 1000.0
-    assert abs(fit.between_wash_rate_per_1000h - want_between) < 4 * fit.between_wash_rate_per_1000h_se
+    assert (
+        abs(fit.between_wash_rate_per_1000h - want_between) < 4 * fit.between_wash_rate_per_1000h_se
+    )
     assert fit.between_wash_rate_per_1000h_se < 0.05 * abs(want_between)
-    assert abs(fit.post_wash_rate_per_1000h - (-NONREC * 1000.0)) < 4 * fit.post_wash_rate_per_1000h_se
+    assert (
+        abs(fit.post_wash_rate_per_1000h - (-NONREC * 1000.0)) < 4 * fit.post_wash_rate_per_1000h_se
+    )
     assert fit.r_squared > 0.8
     assert fit.residual_std == pytest.approx(SIGMA, rel=0.1)
     np.testing.assert_allclose(fit.segment_start[1:], WASHES)
@@ -93,7 +97,9 @@ def test_piecewise_model_matches_numpy_lstsq_with_dummies() -> None:
     beta, rss, *_ = np.linalg.lstsq(X, y, rcond=None)
     cov = rss[0] / (len(y) - 6) * np.linalg.inv(X.T @ X)
     assert fit.between_wash_rate_per_1000h == pytest.approx(beta[5] * 1000.0, rel=1e-9)
-    assert fit.between_wash_rate_per_1000h_se == pytest.approx(np.sqrt(cov[5, 5]) * 1000.0, rel=1e-9)
+    assert fit.between_wash_rate_per_1000h_se == pytest.approx(
+        np.sqrt(cov[5, 5]) * 1000.0, rel=1e-9
+    )
     np.testing.assert_allclose(fit.segment_level, beta[:5], rtol=1e-12)
     ref = stats.linregress(np.concatenate([[t.min()], WASHES]), beta[:5])
     assert fit.post_wash_rate_per_1000h == pytest.approx(ref.slope * 1000.0, rel=1e-9)
