@@ -122,7 +122,7 @@ class ResultOut(_Out):
     warnings: list[str]
     steady_state: Literal["steady", "transient", "undecided"] = Field(
         description="steady-state test of the snapshot: steady, transient, or undecided "
-        "(warming up, or a signal missing)"
+        "(the test is still warming up; a missing signal counts as transient)"
     )
     r_statistic: float | None
     labels: dict[str, str | None]

@@ -30,6 +30,7 @@ from typing import Any
 
 import numpy as np
 import pytest
+import sqlalchemy as sa
 from live_support import (
     OPERATING_POINTS,
     Publisher,
@@ -45,6 +46,7 @@ from sqlalchemy.engine import make_url
 from daemon.compute import bindings_from_plant, compute_batch
 from daemon.config import load_plant
 from daemon.runtime import Runtime
+from daemon.storage import schema as db_schema
 from daemon.types import Snapshot
 from models.gas_turbine import GAS_TURBINE
 from models.status import WARNING_REASONS, Reason
@@ -457,6 +459,21 @@ async def test_database_outage_nothing_acked_is_lost(
             )
             print(f"recovered and caught up {took:.1f} s after the database came back")
             assert rt.store.count("readings") == len(first) + len(second)
+
+            # the outage is written as a db_outage event once the database answers again
+            def outages() -> list[dict[str, Any]]:
+                with rt.store.engine.connect() as conn:
+                    rows = conn.execute(
+                        sa.select(db_schema.events.c.source, db_schema.events.c.detail).where(
+                            db_schema.events.c.kind == "db_outage"
+                        )
+                    ).all()
+                return [json.loads(d) | {"source": src} for src, d in rows]
+
+            await _until(lambda: bool(outages()), 15, "db_outage event")
+            (outage,) = outages()
+            assert outage["source"] == "daemon" and outage["from"] < outage["until"]
+            assert 5.0 <= outage["duration_s"] <= 60.0, outage
     finally:
         proxy.close()
 
