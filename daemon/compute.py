@@ -56,7 +56,8 @@ INPUT_REASONS = int(
 def steady_state_word(steady: bool | None) -> str:
     """The steady-state verdict as the one word used in the API, the page and the demo:
     ``"steady"``, ``"transient"`` or ``"undecided"`` (the test is still warming up; a missing
-    signal counts as transient).  SQL stores it as a boolean (NULL undecided), the metric as 1, 0 or NaN."""
+    signal counts as transient).  SQL stores it as a boolean (NULL undecided), the metric as
+    1, 0 or NaN."""
     if steady is None:
         return "undecided"
     return "steady" if steady else "transient"
