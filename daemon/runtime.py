@@ -101,6 +101,9 @@ class _ConnectionEvents:
         self._connected = False
         self._down_since: float | None = None
 
+    def __getattr__(self, name: str) -> Any:
+        return getattr(self._m, name)  # the other FeedStats counters, unchanged
+
     def connection_state(self, connected: bool) -> None:
         self._m.connection_state(connected)
         if connected and not self._connected:
@@ -109,33 +112,6 @@ class _ConnectionEvents:
         elif not connected and self._connected:
             self._down_since = self._clock()
         self._connected = connected
-
-    def readings_received(self, n: int) -> None:
-        self._m.readings_received(n)
-
-    def readings_accepted(self, unit: str, n: int) -> None:
-        self._m.readings_accepted(unit, n)
-
-    def readings_rejected(self, reason: str, n: int) -> None:
-        self._m.readings_rejected(reason, n)
-
-    def sequence_gap(self, unit: str | None, missing: int) -> None:
-        self._m.sequence_gap(unit, missing)
-
-    def queue_overflow(self, n: int) -> None:
-        self._m.queue_overflow(n)
-
-    def queue_depth(self, depth: int) -> None:
-        self._m.queue_depth(depth)
-
-    def commit_failed(self) -> None:
-        self._m.commit_failed()
-
-    def committed(self, messages: int, seconds: float) -> None:
-        self._m.committed(messages, seconds)
-
-    def reconnect(self) -> None:
-        self._m.reconnect()
 
 
 def tls_context_for(broker: Any, base_dir: Path | None = None) -> ssl.SSLContext | None:

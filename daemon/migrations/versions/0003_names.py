@@ -49,14 +49,9 @@ def _rename(table: str, old: str, new: str) -> None:
     op.execute(f"ALTER TABLE {q(table)} RENAME COLUMN {q(old)} TO {q(new)}")
 
 
-def upgrade() -> None:
-    for old, new in RESULT_RENAMES:
-        _rename("results", old, new)
-    op.add_column(
-        "events", sa.Column("source", sa.String(16), nullable=False, server_default="daemon")
-    )
-    op.add_column("events", sa.Column("unit", sa.String(64), nullable=True))
-    events = sa.table(
+def _events() -> sa.TableClause:
+    """The columns of ``events`` this revision reads and writes."""
+    return sa.table(
         "events",
         sa.column("id", sa.BigInteger()),
         sa.column("source", sa.String()),
@@ -64,6 +59,16 @@ def upgrade() -> None:
         sa.column("unit", sa.String()),
         sa.column("detail", sa.Text()),
     )
+
+
+def upgrade() -> None:
+    for old, new in RESULT_RENAMES:
+        _rename("results", old, new)
+    op.add_column(
+        "events", sa.Column("source", sa.String(16), nullable=False, server_default="daemon")
+    )
+    op.add_column("events", sa.Column("unit", sa.String(64), nullable=True))
+    events = _events()
     conn = op.get_bind()
     operator_rows = conn.execute(
         sa.select(events.c.id, events.c.kind, events.c.detail).where(
@@ -87,14 +92,7 @@ def upgrade() -> None:
 
 
 def downgrade() -> None:
-    events = sa.table(
-        "events",
-        sa.column("id", sa.BigInteger()),
-        sa.column("source", sa.String()),
-        sa.column("kind", sa.String()),
-        sa.column("unit", sa.String()),
-        sa.column("detail", sa.Text()),
-    )
+    events = _events()
     conn = op.get_bind()
     rows = conn.execute(
         sa.select(events.c.id, events.c.kind, events.c.unit, events.c.detail).where(
