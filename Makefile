@@ -4,15 +4,21 @@ VENV   ?= .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test lint typecheck unit bench bench-live clean venv
+.PHONY: demo test lint typecheck unit bench bench-live clean venv constraints
 
 venv: $(STAMP)
 
-$(STAMP): pyproject.toml
+# runtime dependencies at the versions an operator installs (deploy/constraints.txt)
+$(STAMP): pyproject.toml deploy/constraints.txt
 	$(PYTHON) -m venv $(VENV)
 	$(BIN)/python -m pip install --quiet --upgrade pip
-	$(BIN)/python -m pip install --quiet -e '.[test]'
+	$(BIN)/python -m pip install --quiet -c deploy/constraints.txt -e '.[test]'
 	touch $(STAMP)
+
+## constraints: re-resolve the runtime dependencies into deploy/constraints.txt (after editing
+## pyproject.toml's dependencies; the next `make venv` installs them)
+constraints:
+	$(if $(wildcard $(BIN)/python),$(BIN)/python,$(PYTHON)) tools/gen_constraints.py
 
 ## demo: run the main job on the shipped example (no broker or database needed)
 demo: $(STAMP)

@@ -1,8 +1,9 @@
 """``brayscope check -c FILE``: validate a plant file without starting anything.
 
 Prints a one-line summary (units, tags, MQTT subscriptions) and exits 0, or prints every
-problem found, one per line as ``FILE: key.path: message — fix: ...``, and exits 1.  Nothing is
-connected to: no broker, no database.
+problem found, one per line as ``FILE: key.path: message — fix: ...``, and exits 2 (the exit
+status ``brayscope run`` gives for the same problems, so a service manager can treat both alike).
+Nothing is connected to: no broker, no database.
 """
 
 from __future__ import annotations
@@ -21,7 +22,7 @@ A deprecated name (accepted in this release only) is reported as a warning with 
 Environment overrides (BRAYSCOPE_DATABASE_URL, BRAYSCOPE_BROKER_HOST, ...) are applied, and
 secrets named by *_file keys or *_FILE variables must be readable.
 
-exit status: 0 when the file is usable, 1 when it is not.
+exit status: 0 when the file is usable, 2 when it is not (as 'brayscope run' exits).
 
 examples:
   brayscope check -c daemon/examples/kestrel-ridge.toml
@@ -65,7 +66,7 @@ def run(args: argparse.Namespace, out: TextIO | None = None, err: TextIO | None 
             print(str(issue), file=err)
         n = len(exc.issues)
         print(f"FAILED: {n} problem{'s' if n != 1 else ''} in {args.config}", file=err)
-        return 1
+        return 2
     for issue in plant.deprecations:
         print(f"warning: {issue}", file=err)
     summary = (

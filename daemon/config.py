@@ -151,10 +151,26 @@ class BrokerConfig(_Section):
 
 
 class DatabaseConfig(_Section):
-    """``[database]``: SQLAlchemy URL (SQLite or ``postgresql+psycopg://``) and retention."""
+    """``[database]``: SQLAlchemy URL (SQLite or ``postgresql+psycopg://``) and retention.
+
+    ``retention_days`` applies to every table; ``readings_retention_days`` and
+    ``results_retention_days`` (optional) keep raw readings and results for their own periods.
+    """
 
     url: str = Field(default="sqlite:///./brayscope-data/brayscope.sqlite", min_length=1)
     retention_days: float = Field(default=400.0, gt=0.0)
+    readings_retention_days: float | None = Field(default=None, gt=0.0)
+    results_retention_days: float | None = Field(default=None, gt=0.0)
+
+    def retention_by_table(self) -> dict[str, float]:
+        """Days each table keeps its rows [d]: readings and results their own periods when
+        set, everything else ``retention_days``."""
+        return {
+            "results": self.results_retention_days or self.retention_days,
+            "readings": self.readings_retention_days or self.retention_days,
+            "quarantine": self.retention_days,
+            "events": self.retention_days,
+        }
 
 
 class HttpConfig(_Section):

@@ -2,7 +2,9 @@
 
 ``upgrade`` applies the schema migrations (the daemon also does this at start), ``current``
 shows the schema revision in the database and the newest one this version knows, ``purge``
-deletes rows older than the retention period (``database.retention_days``, or ``--days``).
+deletes rows past their retention period (``database.readings_retention_days`` for readings,
+``database.results_retention_days`` for results, ``database.retention_days`` for the rest and
+as the default of both; ``--days`` for every table).
 The database URL is the plant file's ``database.url`` unless ``BRAYSCOPE_DATABASE_URL`` is set.
 """
 
@@ -25,8 +27,10 @@ examples:
   BRAYSCOPE_DATABASE_URL=postgresql+psycopg://brayscope@db.example/brayscope \\
       brayscope db current -c plant.toml
       database revision: REV (head REV, up to date)
+  brayscope db purge -c plant.toml --dry-run
+      would delete: 120 results (older than 1825 days), 86400 readings (older than 90 days), ...
   brayscope db purge -c plant.toml --days 30 --dry-run
-      shows how many rows are older than 30 days, deletes nothing"""
+      shows how many rows of every table are older than 30 days, deletes nothing"""
 
 
 def add_parser(subparsers: Any) -> argparse.ArgumentParser:
@@ -47,7 +51,8 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
         type=float,
         default=None,
         metavar="N",
-        help="purge: delete rows older than N days (default: database.retention_days)",
+        help="purge: delete rows of every table older than N days (default: each table's "
+        "retention from the plant file's [database] section)",
     )
     parser.add_argument(
         "--dry-run", action="store_true", help="purge: count what would be deleted, delete nothing"
@@ -86,15 +91,23 @@ def run(args: argparse.Namespace, out: TextIO | None = None, err: TextIO | None 
             state = "up to date" if current == head else "behind: run 'brayscope db upgrade'"
             print(f"database revision: {current or 'none'} (head {head}, {state})", file=out)
             return 0 if current == head else 3
-        days = args.days if args.days is not None else plant.database.retention_days
-        if days <= 0:
+        if args.days is not None and args.days <= 0:
             print("--days must be > 0", file=err)
             return 1
-        cutoff = time.time() - days * 86400.0
-        counts = store.purge_older_than(cutoff, dry_run=args.dry_run)
+        days = (
+            dict.fromkeys(plant.database.retention_by_table(), args.days)
+            if args.days is not None
+            else plant.database.retention_by_table()
+        )
+        now = time.time()
+        counts = store.purge(
+            {table: now - d * 86400.0 for table, d in days.items()}, dry_run=args.dry_run
+        )
         verb = "would delete" if args.dry_run else "deleted"
-        detail = ", ".join(f"{n} {table}" for table, n in counts.items())
-        print(f"{verb} rows older than {days:g} days: {detail}", file=out)
+        detail = ", ".join(
+            f"{n} {table} (older than {days[table]:g} days)" for table, n in counts.items()
+        )
+        print(f"{verb}: {detail}", file=out)
         return 0
     except SQLAlchemyError as exc:
         print(f"database error ({redact_url(url)}): {exc.__class__.__name__}: {exc}", file=err)

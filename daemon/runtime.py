@@ -11,7 +11,7 @@ Tasks (one :class:`asyncio.TaskGroup`, all stopped together)::
                worker thread) → write_results → metrics → publish
     publisher  retained results and online/offline status (last will)
     db watch   SELECT 1 every db_probe_s: readiness and brayscope_database_up
-    retention  purge rows older than database.retention_days, hourly
+    retention  purge rows past their retention (database.*retention_days), hourly
     http       uvicorn serving daemon.http.create_app in this event loop
 
 Durability: a message is acknowledged to the broker only after its readings (and its
@@ -570,12 +570,12 @@ class Runtime:
             log.info("warm start: %d stored readings primed the assembler", total)
 
     async def _retention(self) -> None:
-        days = float(self.plant.database.retention_days)
+        days = self.plant.database.retention_by_table()
         while True:
             try:
-                counts = await asyncio.to_thread(
-                    self.store.purge_older_than, self.clock() - days * 86400.0
-                )
+                now = self.clock()
+                cutoffs = {table: now - d * 86400.0 for table, d in days.items()}
+                counts = await asyncio.to_thread(self.store.purge, cutoffs)
                 if any(counts.values()):
                     log.info("retention purge: %s", counts)
             except Exception as exc:

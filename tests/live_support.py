@@ -13,6 +13,7 @@ import os
 import shutil
 import signal
 import socket
+import stat
 import subprocess
 import sys
 import threading
@@ -82,6 +83,120 @@ PARAMETERS = {
     "KR-GT1": "{ generator_efficiency = 0.985, combustor_pressure_loss = 0.04 }",
     "KR-GT2": "{ generator_efficiency = 0.982, combustor_pressure_loss = 0.045 }",
 }
+
+
+def require_tools(*tools: str, debian: str) -> dict[str, str]:
+    """Paths of command-line tools a test needs; skip (saying which are missing and the Debian
+    package that has them), or fail when ``BRAYSCOPE_REQUIRE_SERVICES=1`` (CI installs them)."""
+    import pytest
+
+    found = {t: shutil.which(t) for t in tools}
+    missing = [t for t, path in found.items() if path is None]
+    if missing:
+        msg = f"not on PATH: {', '.join(missing)} (Debian package {debian})"
+        if os.environ.get("BRAYSCOPE_REQUIRE_SERVICES") == "1":
+            pytest.fail(msg + "; BRAYSCOPE_REQUIRE_SERVICES=1, so this is a failure")
+        pytest.skip(msg)
+    return {t: str(path) for t, path in found.items()}
+
+
+def run_tool(*cmd: str, cwd: Path) -> None:
+    subprocess.run(cmd, cwd=cwd, check=True, capture_output=True, timeout=60)
+
+
+def make_test_pki(d: Path) -> None:
+    """Write ``ca.crt``/``ca.key`` (a self-signed CA, CA:TRUE) and ``server.crt``/``server.key``
+    (for 127.0.0.1 and localhost, signed by it) into ``d`` with the ``openssl`` command."""
+    run_tool(
+        "openssl", "req", "-x509", "-newkey", "rsa:2048", "-nodes", "-sha256", "-days", "2",
+        "-keyout", "ca.key", "-out", "ca.crt", "-subj", "/CN=Kestrel Ridge test CA",
+        "-addext", "basicConstraints=critical,CA:TRUE",
+        "-addext", "keyUsage=critical,keyCertSign,cRLSign",
+        cwd=d,
+    )  # fmt: skip
+    run_tool(
+        "openssl", "req", "-newkey", "rsa:2048", "-nodes", "-sha256", "-keyout", "server.key",
+        "-out", "server.csr", "-subj", "/CN=localhost",
+        cwd=d,
+    )  # fmt: skip
+    (d / "server.ext").write_text(
+        "basicConstraints=CA:FALSE\n"
+        "keyUsage=critical,digitalSignature,keyEncipherment\n"
+        "extendedKeyUsage=serverAuth\n"
+        "subjectAltName=IP:127.0.0.1,DNS:localhost\n"
+        "subjectKeyIdentifier=hash\n"
+        "authorityKeyIdentifier=keyid,issuer\n"
+    )
+    run_tool(
+        "openssl", "x509", "-req", "-in", "server.csr", "-CA", "ca.crt", "-CAkey", "ca.key",
+        "-CAcreateserial", "-out", "server.crt", "-days", "2", "-sha256",
+        "-extfile", "server.ext",
+        cwd=d,
+    )  # fmt: skip
+
+
+@contextlib.contextmanager
+def mosquitto_running(directory: Path, port: int, timeout: float = 20.0) -> Iterator[Path]:
+    """Run ``mosquitto -c directory/mosquitto.conf`` until the block ends; yields its log.
+
+    Everything in ``directory`` is made readable for the unprivileged user mosquitto drops to
+    when started as root."""
+    for p in [directory, *directory.rglob("*")]:
+        p.chmod(p.stat().st_mode | stat.S_IRGRP | stat.S_IROTH | stat.S_IXOTH * p.is_dir())
+    log = directory / "mosquitto.log"
+    with log.open("wb") as out:
+        proc = subprocess.Popen(
+            [shutil.which("mosquitto") or "mosquitto", "-c", str(directory / "mosquitto.conf")],
+            cwd=directory,
+            stdout=out,
+            stderr=subprocess.STDOUT,
+        )
+    try:
+
+        def up() -> bool:
+            if proc.poll() is not None:
+                raise RuntimeError(f"mosquitto exited: {log.read_text(errors='replace')[-2000:]}")
+            return reachable("127.0.0.1", port, 0.5)
+
+        wait_for(up, timeout, 0.05, f"mosquitto to listen on {port}")
+        yield log
+    finally:
+        proc.terminate()
+        try:
+            proc.wait(timeout=10)
+        except subprocess.TimeoutExpired:
+            proc.kill()
+            proc.wait()
+
+
+def wait_daemon_ready(
+    proc: subprocess.Popen[bytes], http_port: int, log: Path, timeout: float = 60.0
+) -> float:
+    """Wait until the daemon's /readyz answers 200; fail at once if the process exits."""
+
+    def ready() -> bool:
+        if proc.poll() is not None:
+            raise AssertionError(f"daemon exited {proc.returncode}:\n{log.read_text()[-3000:]}")
+        return http_get(http_port, "/readyz")[0] == 200
+
+    return wait_for(ready, timeout, 0.1, "daemon ready")
+
+
+def ambient_reading(ts: float, unit: str = "KR-GT1", topic: str = "kestrel/gt1/TT-AMB") -> Any:
+    """A stored-reading record: ambient temperature 15 degC (288.15 K) at ``ts``."""
+    from daemon.types import Reading
+
+    return Reading(
+        unit=unit,
+        measurement="ambient_temperature",
+        value=288.15,
+        source_ts=ts,
+        received_ts=ts + 0.05,
+        quality="good",
+        topic=topic,
+        raw_value=15.0,
+        raw_uom="degC",
+    )
 
 
 def free_port() -> int:
@@ -318,9 +433,14 @@ class Subscriber:
 
 
 def run_daemon(
-    plant: Path, log: Path, *extra: str, env_extra: dict[str, str] | None = None
+    plant: Path,
+    log: Path,
+    *extra: str,
+    env_extra: dict[str, str] | None = None,
+    launcher: tuple[str, ...] = (),
 ) -> subprocess.Popen[bytes]:
-    """Start ``brayscope run -c plant`` as a child process (logs to ``log``)."""
+    """Start ``brayscope run -c plant`` as a child process (logs to ``log``); ``launcher`` is
+    a command that runs it (e.g. one that restricts the process as its service unit does)."""
     env = dict(os.environ)
     env["PYTHONPATH"] = str(ROOT) + (
         os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else ""
@@ -331,7 +451,7 @@ def run_daemon(
     env.update(env_extra or {})
     with log.open("ab") as fh:
         return subprocess.Popen(
-            [sys.executable, "-m", "daemon.cli", "run", "-c", str(plant), *extra],
+            [*launcher, sys.executable, "-m", "daemon.cli", "run", "-c", str(plant), *extra],
             cwd=plant.parent,
             env=env,
             stdout=fh,

@@ -258,7 +258,7 @@ def test_all_errors_reported_at_once_by_check(
         ("tick_s = 10.0", "tick_s = -1"),
         ('password_file = ""', 'password = "hunter2"'),
     )
-    assert cli.main(["check", "-c", str(path)]) == 1
+    assert cli.main(["check", "-c", str(path)]) == 2  # same status as `run` (deploy unit)
     err = capsys.readouterr().err.strip().splitlines()
     assert err[-1].startswith("FAILED: ")
     lines = err[:-1]
@@ -397,7 +397,8 @@ def test_db_commands(
     assert cli.main(["db", "current", "-c", str(EXAMPLE)]) == 0
     assert f"revision: {head} (head {head}, up to date)" in capsys.readouterr().out
     assert cli.main(["db", "purge", "-c", str(EXAMPLE), "--days", "30", "--dry-run"]) == 0
-    assert "would delete rows older than 30 days: 0 results, 0 readings" in capsys.readouterr().out
+    out = capsys.readouterr().out
+    assert "would delete: 0 results (older than 30 days), 0 readings (older than 30 days)" in out
 
 
 # ----------------------------------------------------------------------------------------------

@@ -23,8 +23,6 @@ import contextlib
 import gc
 import shutil
 import ssl
-import stat
-import subprocess
 import tempfile
 import time
 import uuid
@@ -35,7 +33,15 @@ from typing import Any
 
 import aiomqtt
 import pytest
-from live_support import free_port, payload, plant_toml, topic_of
+from live_support import (
+    free_port,
+    make_test_pki,
+    mosquitto_running,
+    payload,
+    plant_toml,
+    run_tool,
+    topic_of,
+)
 
 from daemon.config import load_plant
 from daemon.feeds.decode import Batch, Decoder
@@ -61,60 +67,13 @@ class TlsBroker:
     directory: Path
 
 
-def _run(*cmd: str, cwd: Path) -> None:
-    subprocess.run(cmd, cwd=cwd, check=True, capture_output=True, timeout=60)
-
-
-def _make_pki(d: Path) -> None:
-    """CA (self-signed, CA:TRUE) and a server certificate for 127.0.0.1 / localhost."""
-    _run(
-        "openssl", "req", "-x509", "-newkey", "rsa:2048", "-nodes", "-sha256", "-days", "2",
-        "-keyout", "ca.key", "-out", "ca.crt", "-subj", "/CN=Kestrel Ridge test CA",
-        "-addext", "basicConstraints=critical,CA:TRUE",
-        "-addext", "keyUsage=critical,keyCertSign,cRLSign",
-        cwd=d,
-    )  # fmt: skip
-    _run(
-        "openssl", "req", "-newkey", "rsa:2048", "-nodes", "-sha256", "-keyout", "server.key",
-        "-out", "server.csr", "-subj", "/CN=localhost",
-        cwd=d,
-    )  # fmt: skip
-    (d / "server.ext").write_text(
-        "basicConstraints=CA:FALSE\n"
-        "keyUsage=critical,digitalSignature,keyEncipherment\n"
-        "extendedKeyUsage=serverAuth\n"
-        "subjectAltName=IP:127.0.0.1,DNS:localhost\n"
-        "subjectKeyIdentifier=hash\n"
-        "authorityKeyIdentifier=keyid,issuer\n"
-    )
-    _run(
-        "openssl", "x509", "-req", "-in", "server.csr", "-CA", "ca.crt", "-CAkey", "ca.key",
-        "-CAcreateserial", "-out", "server.crt", "-days", "2", "-sha256",
-        "-extfile", "server.ext",
-        cwd=d,
-    )  # fmt: skip
-
-
-def _wait_port(port: int, proc: subprocess.Popen[bytes], log: Path) -> None:
-    import socket
-
-    deadline = time.monotonic() + TIMEOUT_S
-    while time.monotonic() < deadline:
-        if proc.poll() is not None:
-            raise RuntimeError(f"mosquitto exited: {log.read_text(errors='replace')[-2000:]}")
-        with contextlib.suppress(OSError), socket.create_connection(("127.0.0.1", port), 0.5):
-            return
-        time.sleep(0.05)
-    raise RuntimeError(f"mosquitto did not listen on {port}")
-
-
 @pytest.fixture(scope="module")
 def tls_broker() -> Iterator[TlsBroker]:
     # a directory of our own, readable by the unprivileged user mosquitto may drop to
     d = Path(tempfile.mkdtemp(prefix="brayscope-tls-"))
     try:
-        _make_pki(d)
-        _run("mosquitto_passwd", "-b", "-c", "passwd", USER, PASSWORD, cwd=d)
+        make_test_pki(d)
+        run_tool("mosquitto_passwd", "-b", "-c", "passwd", USER, PASSWORD, cwd=d)
         port = free_port()
         (d / "mosquitto.conf").write_text(
             "per_listener_settings false\n"
@@ -127,28 +86,8 @@ def tls_broker() -> Iterator[TlsBroker]:
             f"keyfile {d / 'server.key'}\n"
             "tls_version tlsv1.2\n"
         )
-        for p in [d, *d.iterdir()]:
-            p.chmod(
-                p.stat().st_mode | stat.S_IRGRP | stat.S_IROTH | (stat.S_IXOTH if p.is_dir() else 0)
-            )
-        log = d / "mosquitto.log"
-        with log.open("wb") as out:
-            proc = subprocess.Popen(
-                [shutil.which("mosquitto") or "mosquitto", "-c", str(d / "mosquitto.conf")],
-                cwd=d,
-                stdout=out,
-                stderr=subprocess.STDOUT,
-            )
-        try:
-            _wait_port(port, proc, log)
+        with mosquitto_running(d, port, TIMEOUT_S):
             yield TlsBroker(port, d / "ca.crt", d)
-        finally:
-            proc.terminate()
-            try:
-                proc.wait(timeout=10)
-            except subprocess.TimeoutExpired:
-                proc.kill()
-                proc.wait()
     finally:
         shutil.rmtree(d, ignore_errors=True)
 

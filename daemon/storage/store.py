@@ -634,24 +634,57 @@ class Store:
         dict
             Table name → rows deleted (or that would be).
         """
-        cutoff = s.to_utc_datetime(ts)
-        targets = (
-            (s.results, s.results.c.ts),
-            (s.readings, s.readings.c.source_ts),
-            (s.quarantine, s.quarantine.c.received_at),
-            (s.events, s.events.c.ts),
-        )
+        return self.purge(dict.fromkeys(_PURGE_COLUMNS, ts), dry_run=dry_run)
+
+    def purge(
+        self, cutoffs: Mapping[str, float | datetime], *, dry_run: bool = False
+    ) -> dict[str, int]:
+        """Delete, per table, the rows older than that table's cut-off (one transaction).
+
+        Parameters
+        ----------
+        cutoffs : mapping table name -> float or datetime
+            ``results``, ``readings``, ``quarantine`` and/or ``events`` to their cut-off
+            (epoch seconds UTC or an aware datetime); tables not named are left alone.
+        dry_run : bool
+            Count only.
+
+        Returns
+        -------
+        dict
+            Table name → rows deleted (or that would be), for the tables named.
+
+        Raises
+        ------
+        ValueError
+            A table that has no retention (``units``) or does not exist.
+        """
+        unknown = set(cutoffs) - set(_PURGE_COLUMNS)
+        if unknown:
+            raise ValueError(f"no retention for {sorted(unknown)}: use {list(_PURGE_COLUMNS)}")
         counts: dict[str, int] = {}
         with self.engine.begin() as conn:
-            for table, col in targets:
+            for name, column in _PURGE_COLUMNS.items():
+                if name not in cutoffs:
+                    continue
+                table = s.metadata.tables[name]
+                col = table.c[column]
+                cutoff = s.to_utc_datetime(cutoffs[name])
                 if dry_run:
                     q = sa.select(sa.func.count()).select_from(table).where(col < cutoff)
-                    counts[table.name] = int(conn.execute(q).scalar_one())
+                    counts[name] = int(conn.execute(q).scalar_one())
                 else:
-                    counts[table.name] = int(
-                        conn.execute(table.delete().where(col < cutoff)).rowcount
-                    )
+                    counts[name] = int(conn.execute(table.delete().where(col < cutoff)).rowcount)
         return counts
+
+
+#: Tables with a retention period -> the time column that decides a row's age.
+_PURGE_COLUMNS: dict[str, str] = {
+    "results": "ts",
+    "readings": "source_ts",
+    "quarantine": "received_at",
+    "events": "ts",
+}
 
 
 def _sqlite_busy(exc: sa.exc.OperationalError) -> bool:
