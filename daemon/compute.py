@@ -127,8 +127,9 @@ class Result:
         The measurements passed to compute [SI]; NaN where unusable.
     input_quality : dict of str to int
         Quality bits per measurement from the snapshot.
-    steady : bool or None
-        Steady-state flag of the snapshot (None: undecided); see :func:`steady_state_word`.
+    steady_state : bool or None
+        Steady-state verdict of the snapshot (True steady, False transient, None undecided);
+        see :func:`steady_state_word`.
     r_statistic : float or None
         R-statistic of the snapshot.
     deviations : dict of str to float
@@ -143,7 +144,7 @@ class Result:
     labels: dict[str, str]
     inputs: dict[str, float]
     input_quality: dict[str, int]
-    steady: bool | None
+    steady_state: bool | None
     r_statistic: float | None
     deviations: dict[str, float] = field(default_factory=dict)
 
@@ -178,7 +179,7 @@ class Result:
             "status": self.status,
             "reasons": self.reasons,
             "warnings": self.warnings,
-            "steady_state": steady_state_word(self.steady),
+            "steady_state": steady_state_word(self.steady_state),
             "r_statistic": num(self.r_statistic),
             "labels": dict(self.labels),
             "results": {k: num(v) for k, v in self.values.items()},
@@ -279,7 +280,7 @@ def _compute_group(
             labels=labels,
             inputs={k: float(v[j]) for k, v in meas.items()},
             input_quality={k: int(v) for k, v in s.quality.items()},
-            steady=s.steady,
+            steady_state=s.steady,
             r_statistic=s.r_statistic,
             deviations=deviations,
         )

@@ -491,7 +491,7 @@ def row_from_result(result: Any) -> dict[str, Any]:
     row: dict[str, Any] = dict(result.values)
     row["ts"] = datetime.fromtimestamp(result.ts, UTC)
     row["in_generator_power"] = result.inputs.get("generator_power")
-    row["steady_state"] = result.steady
+    row["steady_state"] = result.steady_state
     row["status"] = result.status
     row["reasons"] = ",".join([*result.reasons, *result.warnings])
     return row

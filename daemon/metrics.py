@@ -316,7 +316,7 @@ class Metrics:
         self.kpis: list[tuple[KpiGauge, Gauge]] = [
             (k, Gauge(k.metric, k.help, ["unit"], registry=r)) for k in KPI_GAUGES
         ]
-        self.steady = Gauge(
+        self.steady_state = Gauge(
             "brayscope_steady_state",
             "Steady-state test of the last result: 1 steady, 0 transient, NaN undecided",
             ["unit"],
@@ -361,7 +361,7 @@ class Metrics:
                 c.labels(unit=unit)
             for _, g in self.kpis:
                 g.labels(unit=unit).set(math.nan)
-            self.steady.labels(unit=unit).set(math.nan)
+            self.steady_state.labels(unit=unit).set(math.nan)
             self.result_status.labels(unit=unit).set(math.nan)
             self.result_valid.labels(unit=unit).set(math.nan)
             self.result_timestamp.labels(unit=unit).set(math.nan)
@@ -441,7 +441,7 @@ class Metrics:
         status: int,
         *,
         valid: bool,
-        steady: bool | None,
+        steady_state: bool | None,
     ) -> None:
         """Show one result of ``unit`` in the per-unit gauges.
 
@@ -457,8 +457,8 @@ class Metrics:
             Reason bits of the result.
         valid : bool
             True when no non-warning reason bit is set.
-        steady : bool or None
-            Steady-state flag (True steady, False transient, None undecided).
+        steady_state : bool or None
+            Steady-state verdict (True steady, False transient, None undecided).
         """
         if not self._unit_ok(unit):
             return
@@ -468,7 +468,9 @@ class Metrics:
         for k, g in self.kpis:
             v = values.get(k.result, math.nan)
             g.labels(unit=unit).set(float(v) * k.scale if v is not None else math.nan)
-        self.steady.labels(unit=unit).set(math.nan if steady is None else float(steady))
+        self.steady_state.labels(unit=unit).set(
+            math.nan if steady_state is None else float(steady_state)
+        )
         self.result_status.labels(unit=unit).set(int(status))
         self.result_valid.labels(unit=unit).set(1.0 if valid else 0.0)
         self.result_timestamp.labels(unit=unit).set(ts)

@@ -3,8 +3,9 @@
 brayscope uses one name per thing (``docs/glossary.md``).  Where a released name was changed to
 keep that rule, the old name is still **accepted on input** (plant file, ``brayscope calc``
 records, API requests, command-line options) for one release, with a deprecation warning that
-names the new spelling; output always uses the new names.  The next release refuses the old
-names.  ``CHANGELOG.md`` lists every rename for users.
+names the new spelling (on standard error for the command line, in the daemon's log for the
+API and the plant file, and in ``PlantConfig.deprecations``); output always uses the new names.
+The next release refuses the old names.  ``CHANGELOG.md`` lists every rename for users.
 
 Nothing here is used on the hot path: inputs are normalised once, when they are read.
 """
@@ -13,7 +14,6 @@ from __future__ import annotations
 
 import argparse
 import sys
-import warnings
 from collections.abc import Callable, Mapping
 from typing import Any
 
@@ -24,12 +24,9 @@ __all__ = [
     "RENAMED_RESULTS",
     "RENAMED_TREND_LINES",
     "RENAMED_UNIT_KEYS",
-    "NameDeprecationWarning",
     "add_renamed_option",
     "deprecation_message",
-    "new_result_name",
     "renamed_value",
-    "warn_renamed",
 ]
 
 #: Result names (JSON, SQL columns, plant-file baselines, trend KPIs): old -> new.  The
@@ -63,14 +60,6 @@ RENAMED_EVENT_KEYS: Mapping[str, str] = {"text": "detail"}
 RENAMED_TREND_LINES: Mapping[str, str] = {"nonrecoverable": "post_wash"}
 
 
-class NameDeprecationWarning(FutureWarning):
-    """An old name was used on input; it works for this release only.
-
-    A :class:`FutureWarning` (shown by default), because the people who see it are the users
-    of the plant file, the API and the command line, not only developers.
-    """
-
-
 def deprecation_message(where: str, old: str, new: str) -> str:
     """The text of a deprecation warning: where, the old name and its replacement.
 
@@ -81,18 +70,6 @@ def deprecation_message(where: str, old: str, new: str) -> str:
         f"{where}: {old!r} is a deprecated name: use {new!r} "
         "(the old name is accepted in this release only)"
     )
-
-
-def warn_renamed(where: str, old: str, new: str, *, stacklevel: int = 3) -> str:
-    """Issue a :class:`NameDeprecationWarning` and return its message."""
-    message = deprecation_message(where, old, new)
-    warnings.warn(message, NameDeprecationWarning, stacklevel=stacklevel)
-    return message
-
-
-def new_result_name(name: str) -> str:
-    """The current name of a result (``name`` itself when it was not renamed)."""
-    return RENAMED_RESULTS.get(name, name)
 
 
 def add_renamed_option(

@@ -148,7 +148,7 @@ def result_row(
         inputs={k: v for k, v in r.inputs.items() if k in input_columns},
         status=r.status,
         reasons=",".join(reason_names(r.status)),
-        steady_state=r.steady,
+        steady_state=r.steady_state,
         r_statistic=r.r_statistic,
         air_mass_flow_source=r.labels.get("air_mass_flow_source"),
         correction_method=r.labels.get("correction_method"),
@@ -512,7 +512,7 @@ class Runtime:
         for r in results:
             self.last_results[r.unit] = r
             self.metrics.observe_result(
-                r.unit, r.ts, r.values, r.status, valid=r.valid, steady=r.steady
+                r.unit, r.ts, r.values, r.status, valid=r.valid, steady_state=r.steady_state
             )
             if self.publisher is not None:
                 self.publisher.submit(r)

@@ -108,7 +108,7 @@ def test_unknown_units_and_reasons_never_create_series() -> None:
         m.sequence_gap(junk, 3)
         m.sequence_gap(None, 1)
         m.readings_rejected(f"reason_{i}", 1)
-        m.observe_result(junk, 1.0, {"thermal_efficiency": 0.3}, 0, valid=True, steady=True)
+        m.observe_result(junk, 1.0, {"thermal_efficiency": 0.3}, 0, valid=True, steady_state=True)
     assert m.series_count() == before
     refused = families(m)["brayscope_metric_label_refused"]
     total = next(s.value for s in refused.samples if s.name.endswith("_total"))
@@ -126,7 +126,7 @@ def test_kpi_values_in_their_units_and_result_age() -> None:
         "corrected_power": 44.1e6,
         "air_mass_flow": 140.0,
     }
-    m.observe_result("KR-GT1", clock.t - 10.0, values, 0, valid=True, steady=True)
+    m.observe_result("KR-GT1", clock.t - 10.0, values, 0, valid=True, steady_state=True)
     clock.t += 5.0
     fams = families(m)
 
@@ -159,7 +159,7 @@ def test_kpi_values_in_their_units_and_result_age() -> None:
 
 def test_invalid_result_and_undecided_steady_state() -> None:
     m = Metrics(CollectorRegistry(), UNITS)
-    m.observe_result("KR-GT3", 5.0, {}, (1 << 14), valid=False, steady=None)
+    m.observe_result("KR-GT3", 5.0, {}, (1 << 14), valid=False, steady_state=None)
     fams = families(m)
     status = next(
         s.value

@@ -310,8 +310,8 @@ def test_promtool_check_metrics_passes_on_a_scrape() -> None:
     text = (EXAMPLES / "kr-gt1-snapshot.json").read_text(encoding="utf-8")
     (res,) = calculate(parse_document(text), builtin_unit_types())
     values = {k: (np.nan if v is None else v) for k, v in res.results.items()}
-    metrics.observe_result("KR-GT1", 1.78e9, values, 0, valid=True, steady=True)
-    metrics.observe_result("KR-GT2", 1.78e9, {}, 1 << 3, valid=False, steady=None)
+    metrics.observe_result("KR-GT1", 1.78e9, values, 0, valid=True, steady_state=True)
+    metrics.observe_result("KR-GT2", 1.78e9, {}, 1 << 3, valid=False, steady_state=None)
     metrics.readings_rejected("out_of_range", 2)
     metrics.committed(5, 0.01)
 
