@@ -164,13 +164,13 @@ class UnitSpec:
                 stuck[m] = (float(after), float(getattr(tag, "stuck_band", 0.0)))
         extra: tuple[str, ...] = ()
         try:
-            ut = unit.unit_type
+            ut = unit.unit_type_impl
             extra = tuple(f.name for f in ut.measurements if f.required)
         except (RuntimeError, AttributeError):
             extra = ()
         return cls(
             name=name,
-            unit_type=str(unit.type),
+            unit_type=str(unit.unit_type),
             max_age_s=ages,
             extra_measurements=extra,
             max_spread=spread,

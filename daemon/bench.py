@@ -139,10 +139,15 @@ def add_parser(subparsers: Any) -> None:
             "directory. " + CAUTION
         ),
         epilog=(
-            "targets: >= 1,000,000 snapshots/s vectorised on one core, >= 100x the loop, "
-            "efficiency difference <= 0.01 points. Exit 0 all met, 1 a target missed, "
-            "2 cantera missing."
+            "targets: >= 1,000,000 snapshots/s vectorised on one core, >= 100x the loop,\n"
+            "efficiency difference <= 0.01 points.  Exit 0 all met, 1 a target missed,\n"
+            "2 cantera missing.\n\n"
+            "examples:\n"
+            "  brayscope bench                         the default run (1e6 snapshots)\n"
+            "  brayscope bench --snapshots 200000 --loop-sample 500   a quicker look\n"
+            "  brayscope bench --json > bench.json     the figures as one JSON object"
         ),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument(
         "--snapshots",

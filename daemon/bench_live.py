@@ -139,7 +139,7 @@ def bench_plant_text(
                  "max_age_s": 30.0}
             )  # fmt: skip
         units[f"B{u:03d}"] = {
-            "type": "gas_turbine",
+            "unit_type": "gas_turbine",
             "description": "benchmark unit (synthetic)",
             "fuel": {"composition": {"CH4": 0.931, "C2H6": 0.032, "C3H8": 0.007,
                                      "n-C4H10": 0.002, "N2": 0.016, "CO2": 0.012}},
@@ -162,7 +162,6 @@ def bench_plant_text(
         "daemon": {
             "tick_s": tick_s,
             "results_topic_prefix": "brayscope-bench",
-            "steady_window": 10,
         },
         "units": units,
     }
@@ -813,6 +812,15 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
             "the last reading of a tick to the commit of its result, daemon peak RSS) for "
             "100 units x 50 tags at increasing rates; prints PASS/FAIL against the targets."
         ),
+        epilog=(
+            "Needs an MQTT broker on 127.0.0.1 (Mosquitto; BRAYSCOPE_TEST_MQTT=host:port\n"
+            "names another) and takes a few minutes; figures are in docs/benchmarks.md.\n\n"
+            "examples:\n"
+            "  brayscope bench-live                            every stage, 100 units x 50 tags\n"
+            "  brayscope bench-live --rates 1000,2500 --stage-s 10   a quicker look\n"
+            "  brayscope bench-live --units 10 --tags 20 --count 5000   a small plant"
+        ),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("--units", type=int, default=100, help="number of units (default 100)")
     p.add_argument("--tags", type=int, default=50, help="tags per unit (default 50)")

@@ -39,6 +39,7 @@ from daemon.contract import (
     parse_document,
     validate_record,
 )
+from daemon.renames import add_renamed_option
 from models.status import WARNING_REASONS, ModelInputError, reason_names
 from models.unit_types import FieldSpec, UnitType
 
@@ -71,16 +72,8 @@ EXAMPLES: Mapping[str, str] = {
 DEFAULT_EXAMPLE = "kr-gt1-snapshot.json"
 
 EPILOG = f"""\
-examples:
-  brayscope calc --example                       print the shipped KR-GT1 example input
-  brayscope calc --example | brayscope calc -    compute it (JSON to stdout)
-  brayscope calc snapshots.jsonl -f table        a table: records as columns, °C/bar/MW/%
-  brayscope calc batch.json -o results.json      write the results to a file
-  brayscope calc --list-examples                 where the shipped examples are
-  brayscope calc --fields                        every input and result field, unit, default
-
 input (SI units, absolute pressures; details in docs/calc.md):
-  {{"id": "...", "timestamp": "...",
+  {{"id": "...", "ts": "...",
    "measurements": {{"ambient_temperature": 288.15, "ambient_pressure": 101325, ...}},
    "fuel": {{"composition": {{"CH4": 0.93, "C2H6": 0.04, ...}}}}
         or {{"lower_heating_value": 42.8e6, "carbon_mass_fraction": 0.86,
@@ -88,13 +81,23 @@ input (SI units, absolute pressures; details in docs/calc.md):
    "parameters": {{"generator_efficiency": 0.985, ...}}}}       (optional, defaults apply)
   one object, a JSON list, or JSON Lines; NaN/Infinity and unknown keys are rejected.
 
+output: one object per record, in input order: "status" {{"valid", "reasons", "warnings",
+  "errors"}}, then every result by its glossary name (SI; heat rates in kJ/kWh).
+
 exit codes:
   0  every record computed
   1  some record rejected or not computable (its errors/reasons are in the output and on stderr)
   2  usage error or unreadable input
 
 caution: {CAUTION}
-"""
+
+examples:
+  brayscope calc --example                       print the shipped KR-GT1 example input
+  brayscope calc --example | brayscope calc -    compute it (JSON to stdout)
+  brayscope calc snapshots.jsonl -f table        a table: records as columns, °C/bar/MW/%
+  brayscope calc batch.json -o results.json      write the results to a file
+  brayscope calc --list-examples                 where the shipped examples are
+  brayscope calc --fields                        every input and result field, unit, default"""
 
 
 def example_path(name: str = DEFAULT_EXAMPLE) -> Any:
@@ -148,11 +151,12 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
     )
     p.add_argument("-o", "--output", metavar="FILE", help="write the output to FILE")
     p.add_argument(
-        "--unit",
+        "--unit-type",
         default=DEFAULT_UNIT_TYPE,
         metavar="TYPE",
         help=f"unit type of records without a 'unit_type' key (default: {DEFAULT_UNIT_TYPE})",
     )
+    add_renamed_option(p, "--unit", "--unit-type", "unit_type", metavar="TYPE")
     p.add_argument(
         "--example",
         action="store_true",
@@ -191,11 +195,12 @@ class RecordResult:
     ref: RecordRef
     unit: str | None
     id: str | int | None
-    timestamp: str | float | None
+    ts: str | float | None
     results: dict[str, float | None] = field(default_factory=dict)
     labels: dict[str, str] = field(default_factory=dict)
     status_code: int = 0
     errors: list[str] = field(default_factory=list)
+    deprecations: list[str] = field(default_factory=list)
 
     @property
     def reasons(self) -> list[str]:
@@ -208,7 +213,7 @@ class RecordResult:
         return list(_split_reasons(self.status_code)[1])
 
     @property
-    def ok(self) -> bool:
+    def valid(self) -> bool:
         """True when the record was accepted and no non-warning reason is set."""
         return not self.errors and not self.reasons
 
@@ -217,9 +222,9 @@ class RecordResult:
         out: dict[str, Any] = {"record": self.ref.index}
         if self.ref.line is not None:
             out["line"] = self.ref.line
-        out |= {"id": self.id, "timestamp": self.timestamp, "unit_type": self.unit}
+        out |= {"id": self.id, "ts": self.ts, "unit_type": self.unit}
         out["status"] = {
-            "ok": self.ok,
+            "valid": self.valid,
             "reasons": self.reasons,
             "warnings": self.warnings,
             "errors": self.errors,
@@ -323,6 +328,7 @@ def calculate(
         if isinstance(checked, list):
             result.errors.extend(str(e) for e in checked)
             continue
+        result.deprecations.extend(checked.deprecations)
         groups.setdefault(_group_key(checked), []).append(checked)
     for group in groups.values():
         _compute_group(group, outputs)
@@ -428,14 +434,12 @@ def render_table(
     table.add_column("unit", no_wrap=True)
     for t in title_cols:
         table.add_column(t, justify="right", max_width=24)
-    if any(r.timestamp is not None for r in results):
-        table.add_row(
-            "timestamp", "", *["" if r.timestamp is None else str(r.timestamp) for r in results]
-        )
+    if any(r.ts is not None for r in results):
+        table.add_row("ts", "", *["" if r.ts is None else str(r.ts) for r in results])
     table.add_row(
         "status",
         "",
-        *[("ok" if r.ok else "REJECTED" if r.errors else "incomplete") for r in results],
+        *[("valid" if r.valid else "REJECTED" if r.errors else "invalid") for r in results],
     )
     seen: set[str] = set()
     for r in results:
@@ -475,6 +479,11 @@ def _print_fields(unit_type: UnitType, stream: IO[str]) -> None:
             stream.write(f"  {s.name} [{s.unit}] ({need}{extra}{rng}): {s.description}\n")
 
     stream.write(f"unit type {unit_type.name}: {unit_type.description}\n")
+    stream.write(
+        "stations (brayscope numbering; SAE AS755 number in brackets): 0 ambient [0], "
+        "1 compressor inlet [2], 2 compressor discharge [3], 3 turbine inlet [4], "
+        "4 turbine exhaust [5]\n"
+    )
     rows("measurements", unit_type.measurements, False)
     rows("parameters", unit_type.parameters, True)
     stream.write("results:\n")
@@ -532,10 +541,10 @@ def _run(args: argparse.Namespace, unit_types: Mapping[str, UnitType] | None) ->
         for name, what in EXAMPLES.items():
             sys.stdout.write(f"{example_path(name)}\n    {what}\n")
         return EXIT_OK
-    if args.unit not in unit_types:
-        return _usage(f"unknown unit type {args.unit!r}; known: {', '.join(unit_types)}")
+    if args.unit_type not in unit_types:
+        return _usage(f"unknown unit type {args.unit_type!r}; known: {', '.join(unit_types)}")
     if args.fields:
-        _print_fields(unit_types[args.unit], sys.stdout)
+        _print_fields(unit_types[args.unit_type], sys.stdout)
         return EXIT_OK
     if args.input is None:
         return _usage(
@@ -551,9 +560,11 @@ def _run(args: argparse.Namespace, unit_types: Mapping[str, UnitType] | None) ->
     except InputFormatError as exc:
         return _usage(f"{args.input}: {exc}")
 
-    results = calculate(document, unit_types, args.unit)
+    results = calculate(document, unit_types, args.unit_type)
 
     for r in results:
+        for note in r.deprecations:
+            sys.stderr.write(f"{r.ref}: {note}\n")
         for err in r.errors:
             sys.stderr.write(f"{r.ref}: {err}\n")
         if not r.errors and r.reasons:
@@ -579,4 +590,4 @@ def _run(args: argparse.Namespace, unit_types: Mapping[str, UnitType] | None) ->
     finally:
         if stream is not sys.stdout:
             stream.close()
-    return EXIT_OK if all(r.ok for r in results) else EXIT_INVALID
+    return EXIT_OK if all(r.valid for r in results) else EXIT_INVALID

@@ -15,20 +15,22 @@ from typing import Any, TextIO
 __all__ = ["add_parser", "run"]
 
 EPILOG = """\
-example:
-  brayscope check -c daemon/examples/kestrel-ridge.toml
-      OK: 3 units, 38 tags, 27 subscriptions (daemon/examples/kestrel-ridge.toml)
-
-  A mistyped unit of measure is reported with the key and the fix, e.g.
-      plant.toml: units.KR-GT1.tags[3].uom: unknown unit 'degc' (tag kestrel/gt1/TT-CIT)
-      — fix: use one of degC, K, degF, degR
-
-  Use --tags to list every tag with its SI conversion (x_SI = scale * x + offset).
-  Environment overrides (BRAYSCOPE_DATABASE_URL, BRAYSCOPE_BROKER_HOST, ...) are applied, and
-  secrets named by *_file keys or *_FILE variables must be readable.
+A mistyped unit of measure is reported with the key and the fix, e.g.
+    plant.toml: units.KR-GT1.tags[3].uom: unknown unit 'degc' (tag kestrel/gt1/TT-CIT)
+    — fix: use one of degC, K, degF, degR
+A deprecated name (accepted in this release only) is reported as a warning with its fix.
+Environment overrides (BRAYSCOPE_DATABASE_URL, BRAYSCOPE_BROKER_HOST, ...) are applied, and
+secrets named by *_file keys or *_FILE variables must be readable.
 
 exit status: 0 when the file is usable, 2 when it is not (as 'brayscope run' exits).
-"""
+
+examples:
+  brayscope check -c daemon/examples/kestrel-ridge.toml
+      OK: 3 units, 38 tags, 27 subscriptions (daemon/examples/kestrel-ridge.toml)
+  brayscope check -c plant.toml --tags
+      also lists every tag with its SI conversion (x_SI = scale * x + offset)
+  brayscope check -c plant.toml -q && brayscope run -c plant.toml
+      start the daemon only when the file is usable"""
 
 
 def add_parser(subparsers: Any) -> argparse.ArgumentParser:
@@ -65,6 +67,8 @@ def run(args: argparse.Namespace, out: TextIO | None = None, err: TextIO | None 
         n = len(exc.issues)
         print(f"FAILED: {n} problem{'s' if n != 1 else ''} in {args.config}", file=err)
         return 2
+    for issue in plant.deprecations:
+        print(f"warning: {issue}", file=err)
     summary = (
         f"OK: {len(plant.units)} units, {plant.n_tags} tags, "
         f"{len(plant.subscriptions())} subscriptions ({args.config})"

@@ -41,7 +41,16 @@ def build_parser() -> argparse.ArgumentParser:
             "cycle, computes component efficiencies, heat rate and corrected output, stores "
             "and publishes them. " + CAUTION
         ),
-        epilog="Run 'brayscope COMMAND --help' for the options of one command.",
+        epilog=(
+            "Run 'brayscope COMMAND --help' for the options and examples of one command.\n\n"
+            "examples:\n"
+            "  brayscope demo                        the live path on an invented plant\n"
+            "  brayscope calc --example | brayscope calc - -f table\n"
+            "                                        one shipped snapshot, computed\n"
+            "  brayscope check -c plant.toml         validate a plant file\n"
+            "  brayscope run -c plant.toml           the daemon"
+        ),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     parser.add_argument("--version", action="version", version=f"brayscope {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")

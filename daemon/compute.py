@@ -38,6 +38,7 @@ __all__ = [
     "bindings_from_plant",
     "compute_batch",
     "compute_tick",
+    "steady_state_word",
 ]
 
 log = logging.getLogger("brayscope.compute")
@@ -54,6 +55,16 @@ INPUT_REASONS = int(
 
 #: Snapshot quality bits that flag a usable measurement; passed on to the result's status.
 INPUT_WARNINGS = int(Reason.CLOCK_AHEAD)
+
+
+def steady_state_word(steady: bool | None) -> str:
+    """The steady-state verdict as the one word used in the API, the page and the demo:
+    ``"steady"``, ``"transient"`` or ``"undecided"`` (the test is still warming up; a missing
+    signal counts as transient).  SQL stores it as a boolean (NULL undecided), the metric as
+    1, 0 or NaN."""
+    if steady is None:
+        return "undecided"
+    return "steady" if steady else "transient"
 
 
 @dataclass(frozen=True)
@@ -90,7 +101,7 @@ def bindings_from_plant(plant: Any) -> dict[str, UnitBinding]:
     for name, unit in plant.units.items():
         out[name] = UnitBinding(
             name=name,
-            unit_type=unit.unit_type,
+            unit_type=unit.unit_type_impl,
             fuel=unit.fuel_properties,
             fuel_key=json.dumps(unit.fuel.model_dump(), sort_keys=True),
             parameters=dict(unit.effective_parameters()),
@@ -120,8 +131,9 @@ class Result:
         The measurements passed to compute [SI]; NaN where unusable.
     input_quality : dict of str to int
         Quality bits per measurement from the snapshot.
-    steady : bool or None
-        Steady-state flag of the snapshot.
+    steady_state : bool or None
+        Steady-state verdict of the snapshot (True steady, False transient, None undecided);
+        see :func:`steady_state_word`.
     r_statistic : float or None
         R-statistic of the snapshot.
     deviations : dict of str to float
@@ -136,7 +148,7 @@ class Result:
     labels: dict[str, str]
     inputs: dict[str, float]
     input_quality: dict[str, int]
-    steady: bool | None
+    steady_state: bool | None
     r_statistic: float | None
     deviations: dict[str, float] = field(default_factory=dict)
 
@@ -171,20 +183,13 @@ class Result:
             "status": self.status,
             "reasons": self.reasons,
             "warnings": self.warnings,
-            "steady": self.steady,
+            "steady_state": steady_state_word(self.steady_state),
             "r_statistic": num(self.r_statistic),
             "labels": dict(self.labels),
             "results": {k: num(v) for k, v in self.values.items()},
             "deviations": {k: num(v) for k, v in self.deviations.items()},
             "inputs": {k: num(v) for k, v in self.inputs.items()},
         }
-
-
-def _baseline_name(key: str, result_names: set[str]) -> str | None:
-    if key in result_names:
-        return key
-    alt = f"{key}_kJ_per_kWh"
-    return alt if alt in result_names else None
 
 
 def _param_group_key(b: UnitBinding) -> tuple[str, str, tuple[str, ...]]:
@@ -256,7 +261,6 @@ def _compute_group(
         log.error("compute of %s refused its static data: %s", sorted({s.unit for s in snaps}), exc)
         return {}
     status = np.asarray(co.status, dtype=np.uint32) | qual
-    result_names = {r.name for r in ut.results}
     results: dict[int, Result] = {}
     for j, s in enumerate(snaps):
         st = int(status[j])
@@ -271,9 +275,8 @@ def _compute_group(
         b = bindings[s.unit]
         deviations: dict[str, float] = {}
         for key, base in b.baseline.items():
-            rn = _baseline_name(key, result_names)
-            if rn is not None:
-                deviations[rn] = values[rn] - base
+            if key in values:  # baseline keys are result names (checked at load)
+                deviations[key] = values[key] - base
         results[idx[j]] = Result(
             unit=s.unit,
             unit_type=ut.name,
@@ -283,7 +286,7 @@ def _compute_group(
             labels=labels,
             inputs={k: float(v[j]) for k, v in meas.items()},
             input_quality={k: int(v) for k, v in s.quality.items()},
-            steady=s.steady,
+            steady_state=s.steady,
             r_statistic=s.r_statistic,
             deviations=deviations,
         )

@@ -237,7 +237,6 @@ class DaemonConfig(_Section):
     max_payload_bytes: int = Field(default=65536, gt=0)
     future_tolerance_s: float = Field(default=300.0, ge=0.0, le=86400.0)
     past_tolerance_s: float = Field(default=86400.0, ge=0.0, le=315576000.0)
-    steady_window: int = Field(default=30, ge=2)
     subscriptions: Literal["exact", "parent"] = "exact"
 
 
@@ -395,22 +394,22 @@ class TagConfig(_Section):
 class UnitConfig(_Section):
     """``[units.NAME]``: one machine, its static data and its tags."""
 
-    type: str = Field(min_length=1)
+    unit_type: str = Field(min_length=1)
     description: str = ""
     fuel: FuelConfig
     parameters: dict[str, float] = Field(default_factory=dict)
     baseline: dict[str, float] = Field(default_factory=dict)
     tags: list[TagConfig] = Field(min_length=1)
 
-    _unit_type: UnitType | None = PrivateAttr(default=None)
+    _unit_type_impl: UnitType | None = PrivateAttr(default=None)
     _fuel_properties: Any = PrivateAttr(default=None)
 
     @property
-    def unit_type(self) -> UnitType:
-        """The unit type object (set by :func:`load_plant`)."""
-        if self._unit_type is None:
+    def unit_type_impl(self) -> UnitType:
+        """The implementation of ``unit_type`` (schema and compute; set by :func:`load_plant`)."""
+        if self._unit_type_impl is None:
             raise RuntimeError("unit not resolved: load the plant file with load_plant()")
-        return self._unit_type
+        return self._unit_type_impl
 
     @property
     def fuel_properties(self) -> Any:
@@ -419,7 +418,11 @@ class UnitConfig(_Section):
 
     def effective_parameters(self) -> dict[str, float]:
         """Parameters with the unit type's defaults filled in for those not given."""
-        out = {p.name: float(p.default) for p in self.unit_type.parameters if p.default is not None}
+        out = {
+            p.name: float(p.default)
+            for p in self.unit_type_impl.parameters
+            if p.default is not None
+        }
         out.update(self.parameters)
         return out
 
@@ -456,11 +459,19 @@ class PlantConfig(_Section):
     units: dict[str, UnitConfig] = Field(min_length=1)
 
     _source: str = PrivateAttr(default="")
+    _deprecations: list[ConfigIssue] = PrivateAttr(default_factory=list)
 
     @property
     def source(self) -> str:
         """Path of the plant file this was loaded from."""
         return self._source
+
+    @property
+    def deprecations(self) -> list[ConfigIssue]:
+        """Deprecated keys and names found in the file: accepted in this release, refused in
+        the next (each with the fix).  ``brayscope check`` and ``trend`` print them, the
+        daemon logs them as warnings at start."""
+        return list(self._deprecations)
 
     def iter_tags(self) -> Iterator[tuple[str, TagConfig]]:
         """Yield ``(unit_name, tag)`` for every tag, in file order."""
@@ -572,7 +583,7 @@ def load_plant(
     registry : pint.UnitRegistry, optional
         Units registry; the cached process registry by default.
     unit_types : mapping name -> UnitType, optional
-        Unit types to resolve ``units.*.type``; :func:`available_unit_types` by default.
+        Unit types to resolve ``units.*.unit_type``; :func:`available_unit_types` by default.
     env : EnvOverrides, optional
         Environment overrides; read from ``os.environ`` now by default.
 
@@ -609,6 +620,7 @@ def load_plant(
     if checker.issues or plant is None:
         raise PlantConfigError(checker.issues)
     plant._source = fname
+    plant._deprecations = list(checker.deprecations)
     return plant
 
 
@@ -627,6 +639,7 @@ class _Checker:
         self._registry = registry
         self._unit_types = unit_types
         self.issues: list[ConfigIssue] = []
+        self.deprecations: list[ConfigIssue] = []
 
     # -- helpers -------------------------------------------------------------------------------
 
@@ -648,6 +661,7 @@ class _Checker:
     # -- driver --------------------------------------------------------------------------------
 
     def run(self, raw: dict[str, Any], env: EnvOverrides | None) -> PlantConfig | None:
+        self._rename_deprecated(raw)
         self._check_inline_secrets(raw, "")
         self._check_urls(raw, "")
         plant: PlantConfig | None = None
@@ -672,6 +686,44 @@ class _Checker:
         if plant is not None:
             self._apply_environment(plant, env)
         return plant
+
+    # -- deprecated names (accepted for one release) ------------------------------------------
+
+    def _deprecated(self, key_path: str, old: str, new: str | None, why: str = "") -> None:
+        if new is None:
+            message = f"{old!r} is deprecated and ignored ({why})"
+            fix = "delete this line (it is refused from the next release)"
+        else:
+            message = f"{old!r} is a deprecated name (accepted in this release only)"
+            fix = f"rename it to {new!r}"
+        self.deprecations.append(ConfigIssue(self.fname, key_path, message, fix))
+
+    def _rename_deprecated(self, raw: dict[str, Any]) -> None:
+        """Rewrite old names in place to the current ones, noting each (docs: CHANGELOG)."""
+        from daemon.renames import REMOVED_DAEMON_KEYS, RENAMED_RESULTS, RENAMED_UNIT_KEYS
+
+        daemon = raw.get("daemon")
+        if isinstance(daemon, dict):
+            for key, why in REMOVED_DAEMON_KEYS.items():
+                if key in daemon:
+                    del daemon[key]
+                    self._deprecated(f"daemon.{key}", key, None, why)
+        units = raw.get("units")
+        if not isinstance(units, dict):
+            return
+        for name, unit in units.items():
+            if not isinstance(unit, dict):
+                continue
+            for old, new in RENAMED_UNIT_KEYS.items():
+                if old in unit and new not in unit:
+                    unit[new] = unit.pop(old)
+                    self._deprecated(f"units.{name}.{old}", old, new)
+            baseline = unit.get("baseline")
+            if isinstance(baseline, dict):
+                for old, new in RENAMED_RESULTS.items():
+                    if old in baseline and new not in baseline:
+                        baseline[new] = baseline.pop(old)
+                        self._deprecated(f"units.{name}.baseline.{old}", old, new)
 
     # -- secrets ---------------------------------------------------------------------------------
 
@@ -729,16 +781,16 @@ class _Checker:
                 "use letters, digits, '-', '_' or '.', starting with a letter or digit "
                 "(at most 64)",
             )
-        unit_type = self.unit_types.get(unit.type)
+        unit_type = self.unit_types.get(unit.unit_type)
         if unit_type is None:
             self.add(
-                f"{base}.type",
-                f"unknown unit type {unit.type!r}",
+                f"{base}.unit_type",
+                f"unknown unit type {unit.unit_type!r}",
                 f"use one of {', '.join(sorted(self.unit_types))}"
-                + _did_you_mean(unit.type, self.unit_types),
+                + _did_you_mean(unit.unit_type, self.unit_types),
             )
             return
-        unit._unit_type = unit_type
+        unit._unit_type_impl = unit_type
         self._check_fuel(base, unit)
         self._check_named_values(
             f"{base}.parameters", unit.parameters, unit_type.parameters, "parameter"

@@ -4,7 +4,7 @@ A record is one snapshot of one unit::
 
     {
       "id": "KR-GT1 2026-06-01T12:00Z",          optional, echoed (string or integer)
-      "timestamp": "2026-06-01T12:00:00Z",       optional, echoed (string or number)
+      "ts": "2026-06-01T12:00:00Z",              optional, echoed (string or number)
       "unit_type": "gas_turbine",                optional unit type, default "gas_turbine"
       "measurements": {...},                     SI units, absolute pressures
       "fuel": {"composition": {"CH4": 0.93, ...}}            gas fuel, mole fractions
@@ -79,6 +79,7 @@ __all__ = [
     "echo_id",
     "format_quantity",
     "parse_document",
+    "renamed_keys",
     "validate_record",
 ]
 
@@ -523,7 +524,7 @@ def _build_contract(unit_type: UnitType) -> Contract:
         f"{tag}Record",
         __config__=_STRICT,
         id=(str | int | None, None),
-        timestamp=(str | float | None, None),
+        ts=(str | float | None, None),
         unit_type=(str, unit_type.name),
         measurements=(measurements, ...),
         fuel=(FuelSpec, ...),
@@ -555,11 +556,12 @@ class ValidRecord:
     ref: RecordRef
     unit_type: UnitType
     id: str | int | None
-    timestamp: str | float | None
+    ts: str | float | None
     measurements: Mapping[str, float | None]
     fuel: GasFuelSpec | LiquidFuelSpec
     parameters: Mapping[str, float | None]
     corrections: BaseModel | None
+    deprecations: tuple[str, ...] = ()
 
 
 def _type_name(value: Any) -> str:
@@ -576,7 +578,7 @@ _NONFINITE_MESSAGE = (
     "NaN/Infinity is not JSON and is not accepted; omit an unknown optional value or give null"
 )
 #: Top-level keys whose type is a union: pydantic adds the member's name to the error location.
-_UNION_KEYS = {"id": "a string or an integer", "timestamp": "a string or a number"}
+_UNION_KEYS = {"id": "a string or an integer", "ts": "a string or a number"}
 
 
 def _convert_error(err: Mapping[str, Any], contract: Contract) -> FieldError:
@@ -667,6 +669,7 @@ def validate_record(
     """
     if not isinstance(value, dict):
         return [FieldError("", f"must be a JSON object (got {_type_name(value)})")]
+    value, deprecations = renamed_keys(value)
     unit_name = value.get("unit_type", default_unit)
     if isinstance(unit_name, NonFinite):
         return [FieldError("unit_type", _NONFINITE_MESSAGE)]
@@ -692,21 +695,36 @@ def validate_record(
         ref=RecordRef(ref.index, ref.line, rec.id),  # type: ignore[attr-defined]
         unit_type=contract.unit_type,
         id=rec.id,  # type: ignore[attr-defined]
-        timestamp=rec.timestamp,  # type: ignore[attr-defined]
+        ts=rec.ts,  # type: ignore[attr-defined]
         measurements=meas,
         fuel=rec.fuel,  # type: ignore[attr-defined]
         parameters=params,
         corrections=rec.corrections,  # type: ignore[attr-defined]
+        deprecations=deprecations,
     )
 
 
+def renamed_keys(value: dict[str, Any]) -> tuple[dict[str, Any], tuple[str, ...]]:
+    """A record with its deprecated top-level keys renamed (``timestamp`` → ``ts``), and a
+    message for each (accepted for one release; see :mod:`daemon.renames`)."""
+    from daemon.renames import RENAMED_CALC_KEYS, deprecation_message
+
+    notes: list[str] = []
+    for old, new in RENAMED_CALC_KEYS.items():
+        if old in value and new not in value:
+            value = {(new if k == old else k): v for k, v in value.items()}
+            notes.append(deprecation_message("record key", old, new))
+    return value, tuple(notes)
+
+
 def echo_id(value: Any) -> tuple[str | int | None, str | float | None]:
-    """The ``id`` and ``timestamp`` of a raw record, when of an echoable type (for records that
+    """The ``id`` and ``ts`` of a raw record, when of an echoable type (for records that
     fail validation, so their output still carries them)."""
     if not isinstance(value, dict):
         return None, None
+    value, _ = renamed_keys(value)
     rid = value.get("id")
-    ts = value.get("timestamp")
+    ts = value.get("ts")
     rid = rid if isinstance(rid, str | int) and not isinstance(rid, bool) else None
     ts = ts if isinstance(ts, str | int | float) and not isinstance(ts, bool) else None
     return rid, ts

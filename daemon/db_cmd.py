@@ -18,20 +18,19 @@ from typing import Any, TextIO
 __all__ = ["add_parser", "run"]
 
 EPILOG = """\
+exit status: 0 on success, 1 on a configuration or database error, 3 when 'current' finds the
+schema behind this version (run 'brayscope db upgrade').
+
 examples:
   brayscope db upgrade -c daemon/examples/kestrel-ridge.toml
       creates ./brayscope-data/brayscope.sqlite (SQLite, the example's default) and its tables
   BRAYSCOPE_DATABASE_URL=postgresql+psycopg://brayscope@db.example/brayscope \\
       brayscope db current -c plant.toml
-      database revision: 0002 (head 0002, up to date)
+      database revision: REV (head REV, up to date)
   brayscope db purge -c plant.toml --dry-run
       would delete: 120 results (older than 1825 days), 86400 readings (older than 90 days), ...
   brayscope db purge -c plant.toml --days 30 --dry-run
-      shows how many rows of every table are older than 30 days, deletes nothing
-
-exit status: 0 on success, 1 on a configuration or database error, 3 when 'current' finds the
-schema behind this version (run 'brayscope db upgrade').
-"""
+      shows how many rows of every table are older than 30 days, deletes nothing"""
 
 
 def add_parser(subparsers: Any) -> argparse.ArgumentParser:

@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import contextlib
 import hmac
+import logging
 import math
 import re
 from collections.abc import Awaitable, Callable, Iterator
@@ -43,7 +44,7 @@ import uvicorn
 from fastapi import Depends, FastAPI, HTTPException, Path, Query, Request, Response
 from fastapi.responses import HTMLResponse, JSONResponse
 from fastapi.security import HTTPAuthorizationCredentials, HTTPBearer
-from pydantic import BaseModel, ConfigDict, Field, SecretStr
+from pydantic import BaseModel, ConfigDict, Field, SecretStr, model_validator
 
 from daemon import __version__
 from daemon.trend_cmd import KPIS
@@ -70,6 +71,8 @@ API_CAUTION = (
 MAX_RANGE = timedelta(days=31)
 #: Most rows one results query returns.
 MAX_ROWS = 50_000
+log = logging.getLogger("brayscope.http")
+
 _KPI_HELP = "result to trend, one of: " + ", ".join(KPIS)
 
 #: Longest time range one trend query may span.
@@ -113,11 +116,14 @@ class ResultOut(_Out):
     unit: str
     ts: str = Field(description="Snapshot time, ISO 8601 UTC")
     ts_epoch_s: float
-    valid: bool
+    valid: bool = Field(description="true when no reason bit other than warnings is set")
     status: int = Field(description="models.status.Reason bits; 0 = clean")
     reasons: list[str]
     warnings: list[str]
-    steady: bool | None
+    steady_state: Literal["steady", "transient", "undecided"] = Field(
+        description="steady-state test of the snapshot: steady, transient, or undecided "
+        "(the test is still warming up; a missing signal counts as transient)"
+    )
     r_statistic: float | None
     labels: dict[str, str | None]
     results: dict[str, float | None]
@@ -134,15 +140,15 @@ class ResultsOut(_Out):
 
 
 class TrendIntervalOut(_Out):
-    start_operating_h: float | None
+    start_fired_hours: float | None
     level: float | None = Field(description="fitted KPI right after the wash (or record start)")
     level_se: float | None
 
 
 class TrendLineOut(_Out):
-    t_ref_operating_h: float | None
+    t_ref_fired_hours: float | None
     level: float | None
-    rate_per_hour: float | None
+    rate_per_1000h: float | None = Field(description="KPI change per 1000 fired hours")
 
 
 class TrendFitOut(_Out):
@@ -150,15 +156,15 @@ class TrendFitOut(_Out):
         description="ok, too_few_points, no_spread_in_fired_hours, no_wash_in_record, "
         "constant_record"
     )
-    rate_per_1000h: float | None = Field(
-        description="KPI change per 1000 operating hours between washes (fouling plus wear)"
+    between_wash_rate_per_1000h: float | None = Field(
+        description="KPI change per 1000 fired hours between washes (fouling plus wear)"
     )
-    rate_per_1000h_se: float | None
-    postwash_rate_per_1000h: float | None = Field(
-        description="change of the post-wash levels per 1000 h (what washing cannot recover); "
-        "null without a wash in the record"
+    between_wash_rate_per_1000h_se: float | None
+    post_wash_rate_per_1000h: float | None = Field(
+        description="change of the post-wash levels per 1000 fired hours (what washing cannot "
+        "recover); null without a wash in the record"
     )
-    postwash_rate_per_1000h_se: float | None
+    post_wash_rate_per_1000h_se: float | None
     overall_rate_per_1000h: float | None
     overall_rate_per_1000h_se: float | None
     r_squared: float | None
@@ -170,7 +176,7 @@ class TrendFitOut(_Out):
 
 
 class TrendWashOut(_Out):
-    operating_h: float | None
+    fired_hours: float | None
     ts: str
     size: float | None = Field(description="step of the KPI at the wash, in its unit")
 
@@ -178,22 +184,22 @@ class TrendWashOut(_Out):
 class TrendForecastOut(_Out):
     threshold: float
     limit: Literal["lower", "upper"]
-    line: Literal["current", "nonrecoverable", "overall"]
+    line: Literal["current", "post_wash", "overall"]
     k: float
     status: str = Field(description="ahead, already_beyond, never, no_fit")
-    operating_h: float | None
-    operating_h_low: float | None
-    operating_h_high: float | None
+    fired_hours: float | None
+    fired_hours_low: float | None
+    fired_hours_high: float | None
     band_closed: bool = Field(description="false: the rate is not significant at this k")
-    hours_after_last: float | None
-    operating_fraction: float | None = Field(
-        description="operating hours per calendar hour over the record (for the date estimate)"
+    fired_hours_after_last: float | None
+    fired_fraction: float | None = Field(
+        description="fired hours per calendar hour over the record (for the date estimate)"
     )
     estimated_date: str | None
 
 
 class TrendPointOut(_Out):
-    operating_h: float | None
+    fired_hours: float | None
     ts: str
     value: float | None
     n: int
@@ -216,7 +222,7 @@ class TrendOut(_Out):
     n_results: int
     n_firing: int
     n_steady: int
-    operating_hours: float
+    fired_hours: float
     bin_h: float
     n_points: int
     noise_std: float | None
@@ -242,17 +248,33 @@ class ReadyOut(_Out):
 
 
 class EventIn(BaseModel):
-    """An operator event to record (e.g. an off-line compressor wash)."""
+    """An operator event to record (e.g. an off-line compressor wash); stored in ``events``
+    with ``source = "operator"`` and the same ``kind``, ``unit`` and ``detail``."""
 
     model_config = ConfigDict(extra="forbid")
 
     kind: Annotated[str, Field(pattern=KIND_RE, description="lower-case word, e.g. 'wash'")]
     unit: Annotated[str | None, Field(default=None, pattern=UNIT_RE)] = None
-    text: Annotated[str, Field(default="", max_length=2000)] = ""
+    detail: Annotated[str, Field(default="", max_length=2000, description="free text")] = ""
+
+    @model_validator(mode="before")
+    @classmethod
+    def _renamed_keys(cls, data: Any) -> Any:
+        # "text" was the name of "detail" before; accepted for one release
+        from daemon.renames import RENAMED_EVENT_KEYS, deprecation_message
+
+        if isinstance(data, dict):
+            for old, new in RENAMED_EVENT_KEYS.items():
+                if old in data and new not in data:
+                    log.warning(deprecation_message("POST /api/events", old, new))
+                    data = {**data, new: data[old]}
+                    del data[old]
+        return data
 
 
 class EventOut(_Out):
     recorded: bool
+    source: Literal["operator"]
     kind: str
     unit: str | None
 
@@ -285,7 +307,7 @@ class ApiBackend(Protocol):
         self, unit: str, since: float, until: float, limit: int
     ) -> list[dict[str, Any]]: ...
 
-    async def add_event(self, kind: str, unit: str | None, text: str) -> None: ...
+    async def add_event(self, kind: str, unit: str | None, detail: str) -> None: ...
 
 
 def parse_time(text: str | None, default: datetime) -> datetime:
@@ -526,15 +548,22 @@ def create_app(
             str | None, Query(max_length=64, description="ISO 8601 or epoch s; default now")
         ] = None,
         threshold: Annotated[
-            float | None,
-            Query(description="planner's limit in the KPI's stored unit; adds a forecast"),
+            str | None,
+            Query(
+                max_length=32,
+                description="planner's limit, adds a forecast: an efficiency as 0.85 or 85%, "
+                "power in W, heat rate in kJ/kWh",
+            ),
         ] = None,
         line: Annotated[
-            Literal["current", "nonrecoverable", "overall"],
-            Query(description="line to forecast with (current: no further wash)"),
+            Literal["current", "post_wash", "overall", "nonrecoverable"],
+            Query(
+                description="line to forecast with: current (no further wash), post_wash, "
+                "overall ('nonrecoverable' is the deprecated name of post_wash)"
+            ),
         ] = "current",
         bin_h: Annotated[
-            float | None, Query(gt=0, le=1e4, description="operating hours per averaged point")
+            float | None, Query(gt=0, le=1e4, description="fired hours per averaged point")
         ] = None,
         min_step: Annotated[
             float | None, Query(gt=0, description="smallest wash step, KPI unit")
@@ -543,24 +572,49 @@ def create_app(
             int | None, Query(ge=2, le=10_000, description="points per step-test window")
         ] = None,
         max_gap_s: Annotated[
-            float, Query(gt=0, le=86400 * 7, description="longest interval counted as operating")
+            float, Query(gt=0, le=86400 * 7, description="longest interval counted as fired")
         ] = 600.0,
         fired_hours_at_start: Annotated[
             float, Query(ge=0, le=1e7, description="the unit's fired hours at the first result")
         ] = 0.0,
     ) -> TrendOut | JSONResponse:
-        """Degradation trend of a KPI from steady, valid results: rate per 1000 operating
-        hours between washes and of the post-wash levels, wash steps, and the operating
-        hours at which the fitted line reaches ``threshold`` (±2 standard errors).
+        """Degradation trend of a KPI from steady, valid results: rate per 1000 fired
+        hours between washes and of the post-wash levels, wash steps, and the fired hours
+        at which the fitted line reaches ``threshold`` (±2 standard errors).
 
-        Operating hours are counted from result timestamps while the unit fires (fuel flow
-        > 0); brayscope stores no fired-hours counter.  A statistical estimate for planning,
-        not a maintenance instruction."""
-        from daemon.trend_cmd import TrendRecord, collect_async, trend_report
+        Fired hours are counted from result timestamps while the unit fires (fuel flow
+        > 0); the unit's own counter is not read.  A statistical estimate for planning, not
+        a maintenance instruction."""
+        from daemon.renames import (
+            RENAMED_RESULTS,
+            RENAMED_TREND_LINES,
+            deprecation_message,
+        )
+        from daemon.trend_cmd import TrendRecord, collect_async, parse_threshold, trend_report
 
         known_unit(unit)
+        if kpi in RENAMED_RESULTS:
+            log.warning(
+                deprecation_message("GET /api/units/{unit}/trend kpi", kpi, RENAMED_RESULTS[kpi])
+            )
+            kpi = RENAMED_RESULTS[kpi]
+        if line in RENAMED_TREND_LINES:
+            log.warning(
+                deprecation_message(
+                    "GET /api/units/{unit}/trend line", line, RENAMED_TREND_LINES[line]
+                )
+            )
+        which: Literal["current", "post_wash", "overall"] = (
+            "post_wash" if line == "nonrecoverable" else line
+        )
         if kpi not in KPIS:
             return JSONResponse({"detail": _KPI_HELP}, 422)
+        limit: float | None = None
+        if threshold is not None:
+            try:
+                limit = parse_threshold(threshold, KPIS[kpi])
+            except ValueError as exc:
+                return JSONResponse({"detail": f"threshold: {exc}"}, 422)
         try:
             t1 = parse_time(until, datetime.now(UTC))
             t0 = parse_time(since, t1 - timedelta(days=90))
@@ -577,8 +631,8 @@ def create_app(
         base = baselines.get(unit, {}).get(kpi)
         rep = trend_report(
             record,
-            threshold=threshold,
-            which=line,
+            threshold=limit,
+            which=which,
             bin_h=bin_h,
             min_step=min_step,
             window=window,
@@ -603,8 +657,8 @@ def create_app(
         """Record an operator event (needs the read-write token)."""
         if event.unit is not None:
             known_unit(event.unit)
-        await backend.add_event(event.kind, event.unit, event.text)
-        return EventOut(recorded=True, kind=event.kind, unit=event.unit)
+        await backend.add_event(event.kind, event.unit, event.detail)
+        return EventOut(recorded=True, source="operator", kind=event.kind, unit=event.unit)
 
     @app.get("/", response_class=HTMLResponse, include_in_schema=False)
     async def live_page() -> HTMLResponse:
@@ -619,24 +673,16 @@ def create_app(
 
 
 def _baselines(backend: Any, units: list[str]) -> dict[str, dict[str, float]]:
-    """New-and-clean baselines by unit and result name, from the backend's plant file.
-
-    Uses ``backend.plant`` (the runtime's loaded plant file) when there is one; a baseline
-    key without its ``_kJ_per_kWh`` suffix names the kJ/kWh result.
-    """
-    from daemon.trend_cmd import baseline_of
-
+    """New-and-clean baselines by unit and result name, from the backend's plant file
+    (``backend.plant``, the runtime's loaded plant file) when there is one."""
     plant = getattr(backend, "plant", None)
     if plant is None or not hasattr(plant, "units"):
         return {}
-    out: dict[str, dict[str, float]] = {}
-    for u in units:
-        if u not in plant.units:
-            continue
-        keys = getattr(plant.units[u], "baseline", {}) or {}
-        names = {k if not k.endswith("heat_rate") else f"{k}_kJ_per_kWh" for k in keys}
-        out[u] = {n: v for n in names if (v := baseline_of(plant, u, n)) is not None}
-    return out
+    return {
+        u: {k: float(v) for k, v in (getattr(plant.units[u], "baseline", {}) or {}).items()}
+        for u in units
+        if u in plant.units
+    }
 
 
 def _live_page() -> str:

@@ -4,8 +4,9 @@ Everything lives in one :class:`Metrics` object built on an injected
 :class:`prometheus_client.CollectorRegistry`; there is no module-level state and the process
 default registry is never touched, so two runtimes (or two tests) never share counters.
 
-Naming: prefix ``brayscope_``, base units in the suffix (``_seconds``, ``_kelvin``, ``_watts``,
-``_kilograms_per_second``, ``_ratio`` for dimensionless fractions), ``_total`` for counters.
+Naming: prefix ``brayscope_``, Prometheus base units in the suffix (``_seconds``, ``_kelvin``,
+``_watts``, ``_grams_per_second``, ``_ratio`` for dimensionless fractions), ``_total`` for
+counters; ``promtool check metrics`` passes on a scrape (tested).
 The only labels are ``unit`` (a unit name from the plant file) and, on the rejected-readings
 counter, ``reason`` (one of :data:`daemon.types.QUARANTINE_REASONS`).  Label children are
 created once, at construction, for every configured unit and every reason; a call naming any
@@ -16,10 +17,9 @@ the number of series.
 :class:`Metrics` implements the feed's ``FeedStats`` protocol
 (:class:`daemon.feeds.mqtt.FeedStats`), so it can be handed to the MQTT feed directly.
 
-Heat rate is exported twice: ``brayscope_heat_rate_joules_per_joule`` (fuel energy at LHV per
-unit of electrical energy, the base-unit form; 1 J/J = 3600 kJ/kWh) and
-``brayscope_heat_rate_kj_per_kwh`` (the trade's unit).  The list of every metric with its meaning
-is in ``docs/operations.md``.
+Heat rate is exported once, in the trade's kJ/kWh at LHV (``brayscope_heat_rate_lhv_kj_per_kwh``,
+the result's own name): a base-unit J/J twin was read by nobody.  The list of every metric with
+its meaning is in ``docs/operations.md``.
 """
 
 from __future__ import annotations
@@ -48,13 +48,16 @@ __all__ = [
     "Metrics",
 ]
 
-#: kJ/kWh per J/J: 1 kWh = 3600 kJ.
-KJ_PER_KWH_PER_J_PER_J = 3600.0
-
 
 @dataclass(frozen=True, slots=True)
 class KpiGauge:
-    """One per-unit KPI gauge: metric name, the result it shows and a scale factor."""
+    """One per-unit KPI gauge: metric name, the result it shows and a scale factor.
+
+    The metric name is ``brayscope_`` + the result name + the Prometheus base-unit suffix of
+    its unit (``_ratio`` for fractions, ``_kelvin``, ``_watts``, ``_grams_per_second``; none
+    when the result name carries its unit, as ``heat_rate_lhv_kj_per_kwh`` does, or is itself
+    a ratio); ``tests/test_names.py`` checks the rule against the glossary.
+    """
 
     metric: str
     result: str
@@ -63,26 +66,31 @@ class KpiGauge:
 
 
 #: Per-unit KPI gauges (result names from the unit type's results, see docs/glossary.md).
+#: Station numbers in the help texts are brayscope's (docs/glossary.md maps them to SAE
+#: AS755: our 1, 2, 3, 4 are its 2, 3, 4, 5).
 KPI_GAUGES: tuple[KpiGauge, ...] = (
     KpiGauge(
         "brayscope_compressor_isentropic_efficiency_ratio",
         "compressor_isentropic_efficiency",
-        "Compressor isentropic efficiency (h2s - h1)/(h2 - h1), fraction",
+        "Compressor isentropic efficiency (h2s - h1)/(h2 - h1), fraction "
+        "(brayscope stations: 1 compressor inlet, 2 discharge)",
     ),
     KpiGauge(
         "brayscope_compressor_pressure_ratio",
         "compressor_pressure_ratio",
-        "Compressor pressure ratio p2/p1",
+        "Compressor pressure ratio p2/p1 (brayscope stations: 1 compressor inlet, 2 discharge)",
     ),
     KpiGauge(
         "brayscope_turbine_isentropic_efficiency_ratio",
         "turbine_isentropic_efficiency",
-        "Turbine isentropic efficiency (h3 - h4)/(h3 - h4s), fraction",
+        "Turbine isentropic efficiency (h3 - h4)/(h3 - h4s), fraction "
+        "(brayscope stations: 3 turbine inlet, 4 exhaust)",
     ),
     KpiGauge(
         "brayscope_turbine_inlet_temperature_kelvin",
         "turbine_inlet_temperature",
-        "Turbine inlet temperature from the combustor heat balance",
+        "Turbine inlet temperature T3 from the combustor heat balance (mixed mean, below the "
+        "firing temperature; brayscope station 3)",
     ),
     KpiGauge(
         "brayscope_thermal_efficiency_ratio",
@@ -90,14 +98,8 @@ KPI_GAUGES: tuple[KpiGauge, ...] = (
         "Thermal efficiency P_gen/(m_f LHV), fraction",
     ),
     KpiGauge(
-        "brayscope_heat_rate_joules_per_joule",
-        "heat_rate_kJ_per_kWh",
-        "Heat rate at LHV, fuel energy per electrical energy (1 J/J = 3600 kJ/kWh)",
-        1.0 / KJ_PER_KWH_PER_J_PER_J,
-    ),
-    KpiGauge(
-        "brayscope_heat_rate_kj_per_kwh",
-        "heat_rate_kJ_per_kWh",
+        "brayscope_heat_rate_lhv_kj_per_kwh",
+        "heat_rate_lhv_kj_per_kwh",
         "Heat rate at LHV in kJ/kWh (the trade's unit)",
     ),
     KpiGauge(
@@ -106,20 +108,16 @@ KPI_GAUGES: tuple[KpiGauge, ...] = (
         "Generator power corrected to reference conditions",
     ),
     KpiGauge(
-        "brayscope_corrected_heat_rate_joules_per_joule",
-        "corrected_heat_rate_kJ_per_kWh",
-        "Heat rate corrected to reference conditions, J/J (1 J/J = 3600 kJ/kWh)",
-        1.0 / KJ_PER_KWH_PER_J_PER_J,
+        "brayscope_corrected_heat_rate_lhv_kj_per_kwh",
+        "corrected_heat_rate_lhv_kj_per_kwh",
+        "Heat rate at LHV corrected to reference conditions, kJ/kWh",
     ),
     KpiGauge(
-        "brayscope_corrected_heat_rate_kj_per_kwh",
-        "corrected_heat_rate_kJ_per_kWh",
-        "Heat rate corrected to reference conditions in kJ/kWh",
-    ),
-    KpiGauge(
-        "brayscope_air_mass_flow_kilograms_per_second",
+        "brayscope_air_mass_flow_grams_per_second",
         "air_mass_flow",
-        "Compressor air mass flow (measured or from the heat balance)",
+        "Compressor air mass flow, measured or from the heat balance (brayscope station 1), "
+        "in the Prometheus base unit g/s (1000 g/s = 1 kg/s)",
+        1000.0,
     ),
     KpiGauge(
         "brayscope_shaft_power_watts",
@@ -318,9 +316,9 @@ class Metrics:
         self.kpis: list[tuple[KpiGauge, Gauge]] = [
             (k, Gauge(k.metric, k.help, ["unit"], registry=r)) for k in KPI_GAUGES
         ]
-        self.steady = Gauge(
+        self.steady_state = Gauge(
             "brayscope_steady_state",
-            "1 steady, 0 transient, NaN undecided (steady-state test of the last result)",
+            "Steady-state test of the last result: 1 steady, 0 transient, NaN undecided",
             ["unit"],
             registry=r,
         )
@@ -363,7 +361,7 @@ class Metrics:
                 c.labels(unit=unit)
             for _, g in self.kpis:
                 g.labels(unit=unit).set(math.nan)
-            self.steady.labels(unit=unit).set(math.nan)
+            self.steady_state.labels(unit=unit).set(math.nan)
             self.result_status.labels(unit=unit).set(math.nan)
             self.result_valid.labels(unit=unit).set(math.nan)
             self.result_timestamp.labels(unit=unit).set(math.nan)
@@ -443,7 +441,7 @@ class Metrics:
         status: int,
         *,
         valid: bool,
-        steady: bool | None,
+        steady_state: bool | None,
     ) -> None:
         """Show one result of ``unit`` in the per-unit gauges.
 
@@ -459,8 +457,8 @@ class Metrics:
             Reason bits of the result.
         valid : bool
             True when no non-warning reason bit is set.
-        steady : bool or None
-            Steady-state flag (None = undecided).
+        steady_state : bool or None
+            Steady-state verdict (True steady, False transient, None undecided).
         """
         if not self._unit_ok(unit):
             return
@@ -470,7 +468,9 @@ class Metrics:
         for k, g in self.kpis:
             v = values.get(k.result, math.nan)
             g.labels(unit=unit).set(float(v) * k.scale if v is not None else math.nan)
-        self.steady.labels(unit=unit).set(math.nan if steady is None else float(steady))
+        self.steady_state.labels(unit=unit).set(
+            math.nan if steady_state is None else float(steady_state)
+        )
         self.result_status.labels(unit=unit).set(int(status))
         self.result_valid.labels(unit=unit).set(1.0 if valid else 0.0)
         self.result_timestamp.labels(unit=unit).set(ts)

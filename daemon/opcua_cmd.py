@@ -18,23 +18,21 @@ from typing import Any, TextIO
 __all__ = ["add_parser", "run"]
 
 EPILOG = """\
+Passwords come from an environment variable (--password-env) or a file (--password-file),
+never from the command line.  With --security sign or sign-and-encrypt the server
+certificate must be in --trust-dir or equal --server-cert (never trusted on first use).
+
+exit status: 0 listed, 1 connection or security failure, 2 bad arguments.
+
 examples:
   brayscope opcua browse --endpoint opc.tcp://kr-dcs01:4840/
       lists the Objects folder two levels deep, e.g.
       nsu=urn:kestrel-ridge:gt;s=KR-GT1.TT-CD  2:TT-CD  Variable  Double  398.85  Good
-
   brayscope opcua browse --endpoint opc.tcp://kr-dcs01:4840/ \\
       --node "nsu=urn:kestrel-ridge:gt;s=KR-GT1" --depth 1 --tsv > kr-gt1-nodes.tsv
-
   brayscope opcua browse --endpoint opc.tcp://kr-dcs01:4840/ --security sign-and-encrypt \\
       --cert client.der --key client-key.pem --trust-dir pki/trusted \\
       --username kr-reader --password-env KR_OPCUA_PASSWORD
-
-  Passwords come from an environment variable (--password-env) or a file (--password-file),
-  never from the command line.  With --security sign or sign-and-encrypt the server
-  certificate must be in --trust-dir or equal --server-cert (never trusted on first use).
-
-exit status: 0 listed, 1 connection or security failure, 2 bad arguments.
 """
 
 _MODES = {"none": ("None", "None"), "sign": ("Basic256Sha256", "Sign")}

@@ -77,6 +77,21 @@ def configure_logging(level: str = "info", fmt: str = "json") -> None:
         logging.getLogger(name).setLevel("DEBUG" if level == "debug" else "WARNING")
 
 
+RUN_EPILOG = """\
+exit status: 0 after a clean stop (SIGTERM or SIGINT), 1 when the runtime failed to start,
+2 when the plant file is not usable.  Secrets come from the environment or files, never the
+plant file (docs/configuration.md); routes, metrics and topics are in docs/operations.md.
+
+examples:
+  brayscope run -c daemon/examples/kestrel-ridge.toml --log-format text
+      the example plant against a broker on 127.0.0.1:1883, SQLite in ./brayscope-data
+  BRAYSCOPE_DATABASE_URL=postgresql+psycopg://brayscope@db.example/brayscope \\
+  BRAYSCOPE_BROKER_PASSWORD_FILE=/etc/brayscope/broker.pw brayscope run -c plant.toml
+      production: PostgreSQL, and the broker password from a file readable by the daemon only
+  curl -s http://127.0.0.1:9478/readyz; curl -s http://127.0.0.1:9478/metrics | head
+      is it ready, and what does it export"""
+
+
 def add_parser(subparsers: Any) -> argparse.ArgumentParser:
     """Register ``brayscope run``."""
     p: argparse.ArgumentParser = subparsers.add_parser(
@@ -87,6 +102,8 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
             "store readings and results, serve /metrics, /healthz, /readyz and the API, and "
             "publish results. Advisory monitoring only: not a protection or control system."
         ),
+        epilog=RUN_EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("-c", "--config", required=True, metavar="PLANT.toml", help="plant file")
     p.add_argument(

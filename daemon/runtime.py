@@ -50,7 +50,7 @@ import threading
 import time
 from collections import deque
 from collections.abc import Mapping, Sequence
-from datetime import datetime
+from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
@@ -58,7 +58,7 @@ from prometheus_client import CollectorRegistry
 
 from daemon import __version__
 from daemon.assembly import Assembler
-from daemon.compute import Result, UnitBinding, bindings_from_plant, compute_tick
+from daemon.compute import Result, UnitBinding, bindings_from_plant, compute_tick, steady_state_word
 from daemon.feeds.decode import Batch, Decoder
 from daemon.feeds.mqtt import MqttFeed
 from daemon.metrics import Metrics
@@ -86,8 +86,40 @@ _OWN_TASKS = frozenset(
 #: Result rows kept while the database refuses them (oldest dropped first, counted).
 MAX_PENDING_RESULTS = 10_000
 
+#: Daemon events (reconnect, db_outage) kept while the database refuses them.
+MAX_PENDING_EVENTS = 1000
+
 #: Wake-up after a tick boundary [s] (timer granularity; the tick then waits for the feed).
 TICK_SLACK_S = 0.002
+
+
+def _iso(ts: float) -> str:
+    return datetime.fromtimestamp(ts, UTC).isoformat(timespec="milliseconds").replace("+00:00", "Z")
+
+
+class _ConnectionEvents:
+    """The feed's stats (:class:`daemon.feeds.mqtt.FeedStats`): every call goes to the
+    metrics; a change of the broker connection also goes to ``on_change(connected,
+    down_since)``, so the runtime can record a ``reconnect`` event."""
+
+    def __init__(self, metrics: Metrics, on_change: Any, clock: Any) -> None:
+        self._m = metrics
+        self._on_change = on_change
+        self._clock = clock
+        self._connected = False
+        self._down_since: float | None = None
+
+    def __getattr__(self, name: str) -> Any:
+        return getattr(self._m, name)  # the other FeedStats counters, unchanged
+
+    def connection_state(self, connected: bool) -> None:
+        self._m.connection_state(connected)
+        if connected and not self._connected:
+            self._on_change(True, self._down_since)
+            self._down_since = None
+        elif not connected and self._connected:
+            self._down_since = self._clock()
+        self._connected = connected
 
 
 def tls_context_for(broker: Any, base_dir: Path | None = None) -> ssl.SSLContext | None:
@@ -124,7 +156,7 @@ def result_row(
         inputs={k: v for k, v in r.inputs.items() if k in input_columns},
         status=r.status,
         reasons=",".join(reason_names(r.status)),
-        steady=r.steady,
+        steady_state=r.steady_state,
         r_statistic=r.r_statistic,
         air_mass_flow_source=r.labels.get("air_mass_flow_source"),
         correction_method=r.labels.get("correction_method"),
@@ -159,7 +191,7 @@ def row_to_api(row: Mapping[str, Any]) -> dict[str, Any]:
         "status": status,
         "reasons": reason_names(status & ~int(WARNING_REASONS)),
         "warnings": reason_names(status & int(WARNING_REASONS)),
-        "steady": row.get("steady"),
+        "steady_state": steady_state_word(row.get("steady_state")),
         "r_statistic": _num(row.get("r_statistic")),
         "labels": {k: row.get(k) for k in db_schema.RESULT_LABEL_COLUMNS},
         "results": {k: _num(row.get(k)) for k in db_schema.RESULT_VALUE_COLUMNS},
@@ -227,7 +259,7 @@ class Runtime:
             self.decoder,
             filters=self.filters,
             commit=self._commit,
-            stats=self.metrics,
+            stats=_ConnectionEvents(self.metrics, self._broker_connection, clock),
             username=plant.broker.username or None,
             password=secret,
             tls_context=tls,
@@ -250,7 +282,11 @@ class Runtime:
         self._input_cols = frozenset(db_schema.RESULT_INPUT_COLUMNS)
         self._pending: deque[ResultRow] = deque()
         self._db_ok = False
+        self._db_was_up = False
+        self._db_down_since: float | None = None
         self._db_detail = "not checked yet"
+        # daemon events waiting to be written (reconnect, db_outage), oldest dropped first
+        self._events: deque[tuple[float, str, str]] = deque(maxlen=MAX_PENDING_EVENTS)
         self._db_prepared = False
         self._started = time.monotonic()
         self._stop: asyncio.Event | None = None
@@ -265,6 +301,8 @@ class Runtime:
         sqlite = getattr(getattr(self.store, "url", None), "get_backend_name", lambda: "")()
         self._write_lock: Any = threading.Lock() if sqlite == "sqlite" else contextlib.nullcontext()
         self._warn_missing_columns()
+        for issue in getattr(plant, "deprecations", ()):
+            log.warning("plant file: %s", issue)
 
     def _check_own_topics(self) -> None:
         from paho.mqtt.client import topic_matches_sub
@@ -301,7 +339,7 @@ class Runtime:
         return [
             {
                 "name": name,
-                "unit_type": u.type,
+                "unit_type": u.unit_type,
                 "description": u.description,
                 "results_topic": result_topic(prefix, name),
             }
@@ -338,10 +376,9 @@ class Runtime:
         rows = await self._db(self.store.results_between, unit, since, until)
         return [row_to_api(r) for r in rows[:limit]]
 
-    async def add_event(self, kind: str, unit: str | None, text: str) -> None:
-        """Record an operator event."""
-        detail = json.dumps({"unit": unit, "text": text, "source": "api"})
-        await self._db(self.store.write_event, f"operator_{kind}"[:64], detail)
+    async def add_event(self, kind: str, unit: str | None, detail: str) -> None:
+        """Record an operator event (``source = "operator"``)."""
+        await self._db(lambda: self.store.write_event(kind, detail, source="operator", unit=unit))
 
     async def _db(self, fn: Any, *args: Any) -> Any:
         try:
@@ -356,11 +393,46 @@ class Runtime:
         if ok != self._db_ok:
             if ok:
                 log.info("database %s available", redact_url(self.store.url))
+                if self._db_down_since is not None:
+                    self._event_outage("db_outage", self._db_down_since, self._db_detail)
+                    self._db_down_since = None
+                self._db_was_up = True
             else:
                 log.warning("database %s unavailable: %s", redact_url(self.store.url), detail)
+                if self._db_was_up:
+                    self._db_down_since = self.clock()
         self._db_ok = ok
         self._db_detail = "ok" if ok else (detail or "unavailable")
         self.metrics.database_up.set(1 if ok else 0)
+
+    # -- daemon events (written with the next tick, so an outage is recorded once it is over) --
+
+    def _event_outage(self, kind: str, since: float, cause: str) -> None:
+        now = self.clock()
+        detail = json.dumps(
+            {
+                "from": _iso(since),
+                "until": _iso(now),
+                "duration_s": round(now - since, 3),
+                "cause": cause,
+            }
+        )
+        self._events.append((now, kind, detail))
+
+    def _broker_connection(self, connected: bool, down_since: float | None) -> None:
+        """Called by the feed's stats when the broker connection changes."""
+        if connected and down_since is not None:
+            self._event_outage("reconnect", down_since, "broker connection lost")
+
+    async def _flush_events(self) -> None:
+        while self._events and self._db_prepared and self._db_ok:
+            ts, kind, detail = self._events[0]
+            try:
+                await asyncio.to_thread(self.store.write_event, kind, detail, ts)
+            except Exception as exc:
+                log.warning("daemon event %s waits for the database: %s", kind, exc)
+                return
+            self._events.popleft()
 
     def _prepare_db_sync(self) -> None:
         self.store.upgrade()
@@ -483,7 +555,7 @@ class Runtime:
         for r in results:
             self.last_results[r.unit] = r
             self.metrics.observe_result(
-                r.unit, r.ts, r.values, r.status, valid=r.valid, steady=r.steady
+                r.unit, r.ts, r.values, r.status, valid=r.valid, steady_state=r.steady_state
             )
             if self.publisher is not None:
                 self.publisher.submit(r)
@@ -505,6 +577,7 @@ class Runtime:
                 self._pending.popleft()
             self.metrics.results_written(n)
         self.metrics.results_pending.set(len(self._pending))
+        await self._flush_events()
 
     async def _warm_start(self) -> None:
         """Prime the assembler from readings stored within each tag's max age."""

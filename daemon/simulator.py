@@ -36,7 +36,7 @@ Scenario (defaults, see :func:`kestrel_ridge_scenario`)
   between them while it fast-forwards again (:meth:`PlantScenario.scenario_hours`);
 * noise on every sensor; KR-GT1 sends ``"NaN"`` text for its compressor discharge
   temperature once in a while, KR-GT2 reports an ambient temperature of 999 °C now and then
-  (out of range), KR-GT3's package controller sends a bare ``NaN`` token for its exhaust
+  (out of range), KR-GT3's site gateway sends a bare ``NaN`` token for its exhaust
   pressure once in a while; KR-GT2's humidity sensor is stuck between scenario hours 4 and 16.
 
 The daemon is expected to quarantine the rubbish (with its reason code), to flag results

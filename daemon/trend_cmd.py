@@ -3,20 +3,22 @@
 For maintenance planners.  The stored results of a unit are reduced to a degradation record
 (steady, valid results only; see :func:`trend_report`) and handed to :mod:`models.trends`:
 
-* :func:`models.trends.fit_degradation` — rate between washes (recoverable plus
-  non-recoverable) per 1000 operating hours, the rate of the post-wash levels, one overall
-  line;
+* :func:`models.trends.fit_degradation` — the between-wash rate (recoverable plus
+  non-recoverable) per 1000 fired hours, the post-wash rate (of the levels right after the
+  washes: the non-recoverable part), one overall line;
 * :func:`models.trends.detect_steps` — washes (or any recovery) found as level steps in the
   record; they split the fit into wash intervals;
 * :func:`models.trends.forecast_crossing` — when the fitted line reaches a threshold, with a
   ±2 standard-error band.
 
-Time axis.  brayscope does not store a fired-hours counter.  The time axis is **operating
-hours counted from the result timestamps**: the time between two consecutive results counts
-when the unit was firing at both (fuel flow > 0) and the gap is at most ``max_gap_s``
-(default 600 s).  Time while the daemon was not running is therefore not counted, even if the
-unit ran; give the unit's own fired-hours counter at the first result with
-``--fired-hours-at-start`` to report on its scale.
+Time axis: **fired hours**, counted from the result timestamps.  Of the trade's counters
+(operating hours: rotor turning; fired hours: flame on; equivalent operating hours: fired
+hours weighted for starts, trips and peak firing) degradation follows fired hours, and that is
+what brayscope counts: the time between two consecutive results counts when the unit was
+firing at both (fuel flow > 0) and the gap is at most ``max_gap_s`` (default 600 s).  Time
+while the daemon was not running is therefore not counted, even if the unit fired; give the
+unit's own fired-hours counter at the first result with ``--fired-hours-at-start`` to report
+on its scale.  Equivalent operating hours are not computed.
 
 The same computation serves ``GET /api/units/{unit}/trend`` (:mod:`daemon.http`).
 
@@ -49,8 +51,9 @@ __all__ = [
     "baseline_of",
     "collect",
     "collect_async",
+    "fired_hours",
     "format_report",
-    "operating_hours",
+    "parse_threshold",
     "run",
     "trend_report",
     "trend_svg",
@@ -65,8 +68,9 @@ TREND_CAUTION = (
 )
 
 TIME_BASIS = (
-    "operating hours counted from result timestamps while firing (fuel flow > 0), gaps longer "
-    "than max_gap_s not counted; fired hours are not stored by brayscope"
+    "fired hours counted from result timestamps: an interval between two results counts when "
+    "the unit fired (fuel flow > 0) at both and they are at most max_gap_s apart; the unit's "
+    "own counter is not read (give it as fired_hours_at_start)"
 )
 
 
@@ -85,7 +89,7 @@ class KpiSpec:
     wash : {"up", "down"}
         Direction a wash moves it.
     scale, shown : float, str
-        Display factor and unit for text and plots.
+        Display factor and unit for text and plots (``"%"`` for fractions shown as per cent).
     """
 
     name: str
@@ -96,7 +100,22 @@ class KpiSpec:
     shown: str = ""
 
     def label(self) -> str:
+        """Unit of the KPI's values as shown to people."""
         return self.shown or self.unit
+
+    @property
+    def percent(self) -> bool:
+        """The KPI is a fraction shown as per cent (its rates are percentage points)."""
+        return self.shown == "%"
+
+    def rate_label(self) -> str:
+        """Unit of a rate (or a difference) of the KPI as shown: percentage points for a
+        fraction shown as per cent, else the KPI's own unit."""
+        return "percentage points" if self.percent else self.label()
+
+    def digits(self) -> str:
+        """Format of a value as shown (two decimals for per cent)."""
+        return ".2f" if self.percent else ".5g"
 
 
 #: KPIs that can be trended.
@@ -107,17 +126,56 @@ KPIS: dict[str, KpiSpec] = {
         KpiSpec("turbine_isentropic_efficiency", "1", "lower", "up", 100.0, "%"),
         KpiSpec("thermal_efficiency", "1", "lower", "up", 100.0, "%"),
         KpiSpec("corrected_power", "W", "lower", "up", 1e-6, "MW"),
-        KpiSpec("corrected_heat_rate_kJ_per_kWh", "kJ/kWh", "upper", "down"),
-        KpiSpec("heat_rate_kJ_per_kWh", "kJ/kWh", "upper", "down"),
+        KpiSpec("corrected_heat_rate_lhv_kj_per_kwh", "kJ/kWh", "upper", "down"),
+        KpiSpec("heat_rate_lhv_kj_per_kwh", "kJ/kWh", "upper", "down"),
         KpiSpec("compressor_pressure_ratio", "1", "lower", "up"),
     )
 }
 
 
-def operating_hours(
+def parse_threshold(text: str | float, kpi: KpiSpec) -> float:
+    """A planner's threshold in the KPI's stored unit, from ``0.85`` or ``85%``.
+
+    A fraction KPI (an efficiency) takes a fraction or a percentage with ``%``; a bare number
+    above 1 is refused, because ``85`` would otherwise mean 8500 %.
+
+    Raises
+    ------
+    ValueError
+        With a message that says what to write instead.
+
+    >>> k = KPIS["compressor_isentropic_efficiency"]
+    >>> parse_threshold("85%", k), parse_threshold("0.85", k)
+    (0.85, 0.85)
+    """
+    raw = str(text).strip()
+    percent = raw.endswith("%")
+    number = raw[:-1].strip() if percent else raw
+    try:
+        value = float(number)
+    except ValueError:
+        raise ValueError(f"threshold {raw!r} is not a number") from None
+    if not math.isfinite(value):
+        raise ValueError(f"threshold {raw!r} is not a finite number")
+    if percent:
+        if not kpi.percent:
+            raise ValueError(
+                f"threshold {raw!r}: a percentage applies to efficiencies only; give "
+                f"{kpi.name} in {kpi.unit}"
+            )
+        value /= 100.0
+    if kpi.percent and not 0.0 < value <= 1.0:
+        raise ValueError(
+            f"threshold {raw!r}: {kpi.name} is a fraction; write {value / 100.0:g} or "
+            f"{value:g}% (a bare {value:g} would mean {value * 100.0:g} %)"
+        )
+    return value
+
+
+def fired_hours(
     ts_epoch_s: FloatArray, firing: NDArray[np.bool_], max_gap_s: float = 600.0
 ) -> FloatArray:
-    """Operating hours at each result, counted from the timestamps [h].
+    """Fired hours at each result, counted from the timestamps [h].
 
     Parameters
     ----------
@@ -152,7 +210,7 @@ class TrendRecord:
     ----------
     kpi : KpiSpec
     max_gap_s : float
-        See :func:`operating_hours`.
+        See :func:`fired_hours`.
     """
 
     kpi: KpiSpec
@@ -184,21 +242,22 @@ class TrendRecord:
             self.n_firing += firing
             self._last_ts, self._last_firing, self.last_ts = t, firing, t
             v = (r.get("results") or {}).get(self.kpi.name)
-            if r.get("steady") is True and r.get("valid") and v is not None and math.isfinite(v):
+            steady = r.get("steady_state") == "steady"
+            if steady and r.get("valid") and v is not None and math.isfinite(v):
                 self.ts.append(t)
                 self.hours.append(self._hours)
                 self.value.append(float(v))
 
     @property
     def total_hours(self) -> float:
-        """Operating hours counted over the whole record [h]."""
+        """Fired hours counted over the whole record [h]."""
         return self._hours
 
 
 def _bins(
     h: FloatArray, y: FloatArray, ts: FloatArray, width: float
 ) -> tuple[FloatArray, FloatArray, FloatArray, NDArray[np.int64]]:
-    """Means of (hours, value, ts) per operating-hour bin of ``width``; counts per bin."""
+    """Means of (hours, value, ts) per fired-hour bin of ``width``; counts per bin."""
     if h.size == 0:
         e = np.zeros(0)
         return e, e, e, np.zeros(0, dtype=np.int64)
@@ -239,7 +298,7 @@ def trend_report(
     record: TrendRecord,
     *,
     threshold: float | None = None,
-    which: Literal["current", "nonrecoverable", "overall"] = "current",
+    which: Literal["current", "post_wash", "overall"] = "current",
     bin_h: float | None = None,
     min_step: float | None = None,
     window: int | None = None,
@@ -255,11 +314,11 @@ def trend_report(
         The accumulated record.
     threshold : float, optional
         Planner's limit in the KPI's stored unit (efficiency as a fraction ...).
-    which : {"current", "nonrecoverable", "overall"}
+    which : {"current", "post_wash", "overall"}
         Line to forecast with (:func:`models.trends.forecast_crossing`).
     bin_h : float, optional
-        Width of the operating-hour bins whose means are fitted [h]; default 1 h, or
-        span / 100 for records shorter than 100 operating hours.
+        Width of the fired-hour bins whose means are fitted [h]; default 1 h, or
+        span / 100 for records shorter than 100 fired hours.
     min_step : float, optional
         Smallest wash step [KPI unit]; default 5 standard errors of the difference of two
         window means: the larger of σ √(2 / window), σ from the median absolute successive
@@ -281,14 +340,15 @@ def trend_report(
     Returns
     -------
     dict
-        ``fit`` (rates per 1000 h with standard errors, R², levels per wash interval),
-        ``washes`` (operating hours, time, size), ``forecast`` (when ``threshold`` is
-        given), ``points`` (the binned record), counts and the time basis.  NaN and ±Inf
+        ``fit`` (rates per 1000 fired hours with standard errors, R², levels per wash
+        interval), ``washes`` (fired hours, time, size), ``forecast`` (when ``threshold``
+        is given), ``points`` (the binned record), counts and the time basis.  NaN and ±Inf
         are null.
 
     Notes
     -----
-    Only steady (``steady`` true) and valid results with a finite KPI enter the record.
+    Only steady (``steady_state`` "steady") and valid results with a finite KPI enter the
+    record.
     Binning follows the advice of :mod:`models.trends`: standard errors from raw ticks come
     out too small because neighbouring ticks are correlated.
     """
@@ -317,7 +377,7 @@ def trend_report(
         steps = detect_steps(hb, yb, min_step, window, direction=kpi.wash)
         wash_h = np.asarray(steps.t, dtype=np.float64)
         washes = [
-            {"operating_h": _f(t), "ts": _iso(float(tb[p])), "size": _f(s)}
+            {"fired_hours": _f(t), "ts": _iso(float(tb[p])), "size": _f(s)}
             for p, t, s in zip(steps.position, steps.t, steps.size, strict=True)
         ]
     fit = fit_degradation(hb, yb, wash_h if wash_h.size else None)
@@ -333,7 +393,7 @@ def trend_report(
         "n_results": record.n_results,
         "n_firing": record.n_firing,
         "n_steady": int(y.size),
-        "operating_hours": record.total_hours,
+        "fired_hours": record.total_hours,
         "bin_h": bin_h,
         "n_points": int(yb.size),
         "noise_std": _f(sigma),
@@ -342,32 +402,32 @@ def trend_report(
         "baseline": baseline,
         "fit": {
             "reason": fit.reason,
-            "rate_per_1000h": _f(fit.recoverable_rate),
-            "rate_per_1000h_se": _f(fit.recoverable_rate_se),
-            "postwash_rate_per_1000h": _f(fit.nonrecoverable_rate),
-            "postwash_rate_per_1000h_se": _f(fit.nonrecoverable_rate_se),
-            "overall_rate_per_1000h": _f(fit.overall_rate),
-            "overall_rate_per_1000h_se": _f(fit.overall_rate_se),
+            "between_wash_rate_per_1000h": _f(fit.between_wash_rate_per_1000h),
+            "between_wash_rate_per_1000h_se": _f(fit.between_wash_rate_per_1000h_se),
+            "post_wash_rate_per_1000h": _f(fit.post_wash_rate_per_1000h),
+            "post_wash_rate_per_1000h_se": _f(fit.post_wash_rate_per_1000h_se),
+            "overall_rate_per_1000h": _f(fit.overall_rate_per_1000h),
+            "overall_rate_per_1000h_se": _f(fit.overall_rate_per_1000h_se),
             "r_squared": _f(fit.r_squared),
             "residual_std": _f(fit.residual_std),
             "n": fit.n,
             "intervals": [
-                {"start_operating_h": _f(a), "level": _f(b), "level_se": _f(c)}
+                {"start_fired_hours": _f(a), "level": _f(b), "level_se": _f(c)}
                 for a, b, c in zip(
                     fit.segment_start, fit.segment_level, fit.segment_level_se, strict=True
                 )
             ],
             "current_line": {
-                "t_ref_operating_h": _f(fit.current.t_ref),
+                "t_ref_fired_hours": _f(fit.current.t_ref),
                 "level": _f(fit.current.level),
-                "rate_per_hour": _f(fit.current.rate_per_hour),
+                "rate_per_1000h": _f(fit.current.rate_per_1000h),
             },
             "latest_value": _f(fit.current.value(fit.t_last)) if fit.n else None,
         },
         "washes": washes,
         "forecast": None,
         "points": [
-            {"operating_h": _f(a), "ts": _iso(float(c)), "value": _f(b), "n": int(d)}
+            {"fired_hours": _f(a), "ts": _iso(float(c)), "value": _f(b), "n": int(d)}
             for a, b, c, d in zip(hb, yb, tb, nb, strict=True)
         ],
     }
@@ -376,7 +436,7 @@ def trend_report(
         t_star, lo, hi = float(cr.t), float(cr.t_low), float(cr.t_high)
         status = str(cr.status)
         ahead_h = t_star - fit.t_last if math.isfinite(t_star) else math.nan
-        # calendar estimate at the record's ratio of operating to calendar hours
+        # calendar estimate at the record's ratio of fired to calendar hours
         cal_h = (record.last_ts - record.first_ts) / 3600.0 if record.n_results > 1 else 0.0
         ratio = record.total_hours / cal_h if cal_h > 0 else math.nan
         eta: str | None = None
@@ -390,12 +450,12 @@ def trend_report(
             "line": which,
             "k": k,
             "status": status,
-            "operating_h": _f(t_star),
-            "operating_h_low": _f(lo),
-            "operating_h_high": _f(hi),
+            "fired_hours": _f(t_star),
+            "fired_hours_low": _f(lo),
+            "fired_hours_high": _f(hi),
             "band_closed": bool(math.isfinite(lo) and math.isfinite(hi)),
-            "hours_after_last": _f(ahead_h),
-            "operating_fraction": _f(ratio),
+            "fired_hours_after_last": _f(ahead_h),
+            "fired_fraction": _f(ratio),
             "estimated_date": eta,
         }
     return out
@@ -415,7 +475,7 @@ def trend_svg(report: Mapping[str, Any], unit: str, width: int = 760, height: in
     washes, baseline and threshold."""
     kpi = KPIS[report["kpi"]]
     sc = kpi.scale
-    pts = [(p["operating_h"], p["value"]) for p in report["points"] if p["value"] is not None]
+    pts = [(p["fired_hours"], p["value"]) for p in report["points"] if p["value"] is not None]
     left, right, top, bottom = 70, 20, 40, 46
     W, H = width - left - right, height - top - bottom
     parts = [
@@ -461,7 +521,7 @@ def trend_svg(report: Mapping[str, Any], unit: str, width: int = 760, height: in
         )
     parts.append(
         f'<text x="{left + W / 2}" y="{height - 8}" text-anchor="middle" fill="#333">'
-        "operating hours (counted from result timestamps)</text>"
+        "fired hours (counted from result timestamps)</text>"
     )
     for name, v, dash in (
         ("baseline", report.get("baseline"), "6 3"),
@@ -474,8 +534,8 @@ def trend_svg(report: Mapping[str, Any], unit: str, width: int = 760, height: in
                 f'y="{Y(v * sc) - 4:.1f}" text-anchor="end" fill="#555">{name}</text>'
             )
     for w in report.get("washes", []):
-        if w["operating_h"] is not None:
-            xw = X(w["operating_h"])
+        if w["fired_hours"] is not None:
+            xw = X(w["fired_hours"])
             parts.append(
                 f'<line x1="{xw:.1f}" x2="{xw:.1f}" y1="{top}" y2="{top + H}" stroke="#7a9cc6"/>'
                 f'<text x="{xw + 3:.1f}" y="{top + 12}" fill="#4a6c96">wash</text>'
@@ -489,8 +549,8 @@ def trend_svg(report: Mapping[str, Any], unit: str, width: int = 760, height: in
         + "</g>"
     )
     fit = report["fit"]
-    rate = fit["rate_per_1000h"]
-    starts = [iv["start_operating_h"] for iv in fit["intervals"]]
+    rate = fit["between_wash_rate_per_1000h"]
+    starts = [iv["start_fired_hours"] for iv in fit["intervals"]]
     levels = [iv["level"] for iv in fit["intervals"]]
     if rate is not None:
         ends = [*starts[1:], x1]
@@ -504,7 +564,8 @@ def trend_svg(report: Mapping[str, Any], unit: str, width: int = 760, height: in
             )
         parts.append(
             f'<text x="{left + 6}" y="{top + 14}" fill="#b5651d">fit: '
-            f"{rate * sc:+.4g} {_esc(kpi.label())} per 1000 h</text>"
+            f"{rate * sc:+.4g} {_esc(kpi.rate_label())} per 1000 fired hours between "
+            "washes</text>"
         )
     parts.append("</svg>")
     return "\n".join(parts)
@@ -520,69 +581,75 @@ def _fmt(v: float | None, sc: float = 1.0, spec: str = ".5g") -> str:
 
 
 def format_report(report: Mapping[str, Any], unit: str) -> str:
-    """The report as text for a terminal."""
+    """The report as text for a terminal (efficiencies in per cent, their rates in
+    percentage points)."""
     kpi = KPIS[report["kpi"]]
-    sc, lab = kpi.scale, kpi.label()
+    sc, lab, rlab, dg = kpi.scale, kpi.label(), kpi.rate_label(), kpi.digits()
     fit = report["fit"]
     lines = [
         f"{unit} · {kpi.name} ({lab}) · {report['first_ts']} .. {report['last_ts']}",
         f"  record       {report['n_results']} results, {report['n_firing']} firing, "
-        f"{report['n_steady']} steady and valid; {report['operating_hours']:.4g} operating h "
+        f"{report['n_steady']} steady and valid; {report['fired_hours']:.4g} fired hours "
         f"in {report['n_points']} bins of {report['bin_h']:.3g} h",
         "  time basis   " + report["time_basis"],
     ]
     if report["baseline"] is not None:
         latest = fit["latest_value"]
-        dev = "" if latest is None else f" (latest fit {(latest - report['baseline']) * sc:+.3g})"
-        lines.append(f"  baseline     {_fmt(report['baseline'], sc)} {lab}{dev}")
+        dev = (
+            ""
+            if latest is None
+            else f" (latest fit {(latest - report['baseline']) * sc:+.3g} {rlab})"
+        )
+        lines.append(f"  baseline     {_fmt(report['baseline'], sc, dg)} {lab}{dev}")
     reason = fit["reason"]
     if reason == "no_wash_in_record":
         reason = "ok; no wash in the record, so no post-wash rate"
     lines.append(f"  fit          {reason}, R² {_fmt(fit['r_squared'], 1, '.3f')}")
-    if report["operating_hours"] < 100.0:
+    if report["fired_hours"] < 100.0:
         lines.append(
-            "  note         fewer than 100 operating hours: the rate reflects ambient, load and "
+            "  note         fewer than 100 fired hours: the rate reflects ambient, load and "
             "noise more than degradation"
         )
     lines.append(
-        f"  rate         {_fmt(fit['rate_per_1000h'], sc)} ± "
-        f"{_fmt(fit['rate_per_1000h_se'], sc, '.2g')} {lab} per 1000 operating h "
-        "(between washes)"
+        f"  between wash {_fmt(fit['between_wash_rate_per_1000h'], sc)} ± "
+        f"{_fmt(fit['between_wash_rate_per_1000h_se'], sc, '.2g')} {rlab} per 1000 fired "
+        "hours (± one standard error; fouling plus wear)"
     )
     lines.append(
-        f"  post-wash    {_fmt(fit['postwash_rate_per_1000h'], sc)} ± "
-        f"{_fmt(fit['postwash_rate_per_1000h_se'], sc, '.2g')} {lab} per 1000 h "
-        "(levels after each wash: the part a wash does not recover)"
+        f"  post-wash    {_fmt(fit['post_wash_rate_per_1000h'], sc)} ± "
+        f"{_fmt(fit['post_wash_rate_per_1000h_se'], sc, '.2g')} {rlab} per 1000 fired hours "
+        "(levels right after each wash: the part a wash does not recover)"
     )
     lines.append(
-        f"  overall      {_fmt(fit['overall_rate_per_1000h'], sc)} {lab} per 1000 h "
-        "(one straight line)"
+        f"  overall      {_fmt(fit['overall_rate_per_1000h'], sc)} {rlab} per 1000 fired "
+        "hours (one straight line)"
     )
     if report["washes"]:
         lines.extend(
-            f"  wash step    {w['ts']} at {_fmt(w['operating_h'])} h: "
-            f"{_fmt(w['size'], sc, '+.3g')} {lab}"
+            f"  wash step    {w['ts']} at {_fmt(w['fired_hours'])} fired hours: "
+            f"{_fmt(w['size'], sc, '+.3g')} {rlab}"
             for w in report["washes"]
         )
     else:
         lines.append(
-            f"  wash steps   none of {_fmt(report['min_step'], sc, '.2g')} {lab} or more "
+            f"  wash steps   none of {_fmt(report['min_step'], sc, '.2g')} {rlab} or more "
             f"(window {report['window']} bins)"
         )
     fc = report["forecast"]
     if fc is not None:
-        head = f"  forecast     {fc['line']} line reaches {_fmt(fc['threshold'], sc)} {lab}: "
+        line = fc["line"].replace("_", "-")
+        head = f"  forecast     {line} line reaches {_fmt(fc['threshold'], sc, dg)} {lab}: "
         if fc["status"] == "ahead":
             band = (
-                f"{_fmt(fc['operating_h_low'])}..{_fmt(fc['operating_h_high'])} h"
+                f"{_fmt(fc['fired_hours_low'])}..{_fmt(fc['fired_hours_high'])} fired hours"
                 if fc["band_closed"]
                 else "band open: the rate is not significant at this k"
             )
             when = f", about {fc['estimated_date']}" if fc["estimated_date"] else ""
             lines.append(
-                head + f"at {_fmt(fc['operating_h'])} operating h, "
-                f"{_fmt(fc['hours_after_last'])} h after the last result{when} "
-                f"(±{fc['k']:g} se: {band})"
+                head + f"at {_fmt(fc['fired_hours'])} fired hours, "
+                f"{_fmt(fc['fired_hours_after_last'])} after the last result{when} "
+                f"(±{fc['k']:g} standard errors: {band})"
             )
         elif fc["status"] == "already_beyond":
             lines.append(head + "already beyond it at the last result")
@@ -594,8 +661,24 @@ def format_report(report: Mapping[str, Any], unit: str) -> str:
     return "\n".join(lines)
 
 
+EPILOG_EXAMPLES = """\
+examples:
+  brayscope trend -c plant.toml --unit KR-GT1
+  brayscope trend -c plant.toml --unit KR-GT1 --since 2026-01-01 --threshold 85%
+  brayscope trend -c plant.toml --unit KR-GT2 --kpi corrected_heat_rate_lhv_kj_per_kwh \\
+      --threshold 10900 --plot gt2-heat-rate.svg
+  brayscope trend -c plant.toml --unit KR-GT1 --json > gt1-trend.json"""
+
+
 def add_parser(subparsers: Any) -> argparse.ArgumentParser:
     """Register ``brayscope trend``."""
+    from daemon.renames import (
+        RENAMED_RESULTS,
+        RENAMED_TREND_LINES,
+        add_renamed_option,
+        renamed_value,
+    )
+
     kpis = ", ".join(KPIS)
     p: argparse.ArgumentParser = subparsers.add_parser(
         "trend",
@@ -603,36 +686,32 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
         formatter_class=argparse.RawDescriptionHelpFormatter,
         description=(
             "Read a unit's stored results, keep the steady and valid ones, average them in\n"
-            "operating-hour bins and fit a degradation line per wash interval:\n\n"
-            "  rate        change per 1000 operating hours between washes (fouling plus wear)\n"
-            "  post-wash   change of the level right after each wash (what a wash cannot\n"
-            "              recover; needs at least one wash in the record)\n"
-            "  wash steps  recoveries found as level steps (a wash raises efficiency and\n"
-            "              power, lowers heat rate)\n"
-            "  forecast    with --threshold: when the fitted line reaches it, with a ±2\n"
-            "              standard-error band (open when the rate is not significant)\n\n"
-            "Time axis: brayscope stores no fired-hours counter.  Operating hours are counted\n"
-            "from result timestamps while the unit fires (fuel flow > 0); gaps longer than\n"
-            "--max-gap are not counted.  Give the unit's own counter at the first result with\n"
-            "--fired-hours-at-start to report on its scale.\n\n"
+            "fired-hour bins and fit a degradation line per wash interval:\n\n"
+            "  between wash  change per 1000 fired hours between washes (fouling plus wear)\n"
+            "  post-wash     change of the level right after each wash per 1000 fired hours\n"
+            "                (what a wash cannot recover; needs at least one wash)\n"
+            "  wash steps    recoveries found as level steps (a wash raises efficiency and\n"
+            "                power, lowers heat rate)\n"
+            "  forecast      with --threshold: when the fitted line reaches it, with a band\n"
+            "                of ±2 standard errors (open when the rate is not significant)\n\n"
+            "Efficiencies are shown in per cent and their rates in percentage points; the\n"
+            "JSON keeps fractions.  Give an efficiency threshold as 0.85 or 85%.\n\n"
+            "Time axis: fired hours, counted from result timestamps while the unit fires\n"
+            "(fuel flow > 0); gaps longer than --max-gap-s are not counted, so time while\n"
+            "brayscope was down is missing.  Give the unit's own fired-hours counter at the\n"
+            "first result with --fired-hours-at-start to report on its scale.\n\n"
             "Fit months, not minutes: rates from a short or unsteady record are dominated by\n"
             "ambient and load effects.  In the demo, time is compressed, so rates per 1000 h\n"
-            "are meaningless there.\n\n" + TREND_CAUTION
+            "are meaningless there.\n\n" + TREND_CAUTION + f"\n\nKPIs: {kpis}"
         ),
-        epilog=(
-            "examples:\n"
-            "  brayscope trend -c plant.toml --unit KR-GT1\n"
-            "  brayscope trend -c plant.toml --unit KR-GT1 --since 2026-01-01 --threshold 0.85\n"
-            "  brayscope trend -c plant.toml --unit KR-GT2 --kpi corrected_heat_rate_kJ_per_kWh"
-            " \\\n      --threshold 10900 --plot gt2-heat-rate.svg\n\n"
-            f"KPIs: {kpis}"
-        ),
+        epilog=EPILOG_EXAMPLES,
     )
     p.add_argument("-c", "--config", required=True, metavar="PLANT.toml", help="the plant file")
     p.add_argument("--unit", required=True, help="unit name as in the plant file")
     p.add_argument(
         "--kpi", default="compressor_isentropic_efficiency", choices=list(KPIS), metavar="KPI",
-        help="result to trend (default compressor_isentropic_efficiency; see the list below)",
+        type=renamed_value(RENAMED_RESULTS, "--kpi"),
+        help="result to trend (default compressor_isentropic_efficiency; see the list above)",
     )  # fmt: skip
     p.add_argument(
         "--since", default=None, metavar="TIME",
@@ -640,32 +719,35 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
     )  # fmt: skip
     p.add_argument("--until", default=None, metavar="TIME", help="end of the range (default now)")
     p.add_argument(
-        "--threshold", type=float, default=None, metavar="Y",
-        help="planner's limit in the KPI's stored unit (efficiency as a fraction, W, kJ/kWh)",
+        "--threshold", default=None, metavar="Y",
+        help="planner's limit: an efficiency as 0.85 or 85%%, power in W, heat rate in kJ/kWh",
     )  # fmt: skip
     p.add_argument(
-        "--line", choices=("current", "nonrecoverable", "overall"), default="current",
+        "--line", choices=("current", "post_wash", "overall"), default="current",
+        type=renamed_value(RENAMED_TREND_LINES, "--line"),
         help=(
-            "line to forecast with: current (no further wash, default), nonrecoverable "
-            "(post-wash levels: when even a wash no longer suffices), overall"
+            "line to forecast with: current (latest wash interval, no further wash; default), "
+            "post_wash (post-wash levels: when even a wash no longer suffices), overall"
         ),
     )  # fmt: skip
     p.add_argument(
-        "--bin", type=float, default=None, metavar="H", dest="bin_h",
-        help="operating hours per averaged point (default 1, or span/100 if shorter than 100 h)",
+        "--bin-h", type=float, default=None, metavar="H", dest="bin_h",
+        help="fired hours per averaged point (default 1, or span/100 if shorter than 100 h)",
     )  # fmt: skip
+    add_renamed_option(p, "--bin", "--bin-h", "bin_h", type=float, metavar="H")
     p.add_argument(
         "--min-step", type=float, default=None, metavar="Y",
-        help="smallest wash step in the KPI's unit (default: 5 standard errors of the noise)",
+        help="smallest wash step in the KPI's stored unit (default: 5 standard errors)",
     )  # fmt: skip
     p.add_argument(
         "--window", type=int, default=None, metavar="N",
         help="points in each window of the wash-step test (default: a day of operation)",
     )  # fmt: skip
     p.add_argument(
-        "--max-gap", type=float, default=600.0, metavar="S",
-        help="longest interval between results counted as operating time (default 600 s)",
+        "--max-gap-s", type=float, default=600.0, metavar="S", dest="max_gap_s",
+        help="longest interval between results counted as fired time (default 600 s)",
     )  # fmt: skip
+    add_renamed_option(p, "--max-gap", "--max-gap-s", "max_gap_s", type=float, metavar="S")
     p.add_argument(
         "--fired-hours-at-start", type=float, default=0.0, metavar="H",
         help="the unit's fired-hours counter at the first result (default 0)",
@@ -678,10 +760,8 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
 def baseline_of(plant: Any, unit: str, kpi: str) -> float | None:
     """The plant file's new-and-clean baseline of ``kpi`` for ``unit`` (None if not given)."""
     base = getattr(plant.units[unit], "baseline", {}) or {}
-    for key, v in base.items():
-        if kpi in {key, f"{key}_kJ_per_kWh"}:
-            return float(v)
-    return None
+    v = base.get(kpi)
+    return None if v is None else float(v)
 
 
 def collect(
@@ -759,6 +839,8 @@ def run(args: argparse.Namespace, out: TextIO | None = None, err: TextIO | None 
         for issue in exc.issues:
             print(str(issue), file=err)
         return 2
+    for issue in plant.deprecations:
+        print(f"warning: {issue}", file=err)
     if args.unit not in plant.units:
         print(f"brayscope trend: no unit {args.unit!r} (units: {', '.join(plant.units)})", file=err)
         return 2
@@ -775,7 +857,14 @@ def run(args: argparse.Namespace, out: TextIO | None = None, err: TextIO | None 
         print("brayscope trend: --window must be >= 2", file=err)
         return 2
     kpi = KPIS[args.kpi]
-    record = TrendRecord(kpi, max_gap_s=args.max_gap)
+    threshold: float | None = None
+    if args.threshold is not None:
+        try:
+            threshold = parse_threshold(args.threshold, kpi)
+        except ValueError as exc:
+            print(f"brayscope trend: --threshold: {exc}", file=err)
+            return 2
+    record = TrendRecord(kpi, max_gap_s=args.max_gap_s)
     store = Store.from_config(plant.database)
     started = time.perf_counter()
     try:
@@ -792,7 +881,7 @@ def run(args: argparse.Namespace, out: TextIO | None = None, err: TextIO | None 
         store.close()
     report = trend_report(
         record,
-        threshold=args.threshold,
+        threshold=threshold,
         which=args.line,
         bin_h=args.bin_h,
         min_step=args.min_step,

@@ -596,19 +596,19 @@ _RESULTS = (
     "turbine_power",
     "shaft_power",
     "heat_input",
-    "heat_rate_kJ_per_kWh",
-    "heat_rate_hhv_kJ_per_kWh",
+    "heat_rate_lhv_kj_per_kwh",
+    "heat_rate_hhv_kj_per_kwh",
     "thermal_efficiency",
     "back_work_ratio",
     "ideal_brayton_efficiency",
     "ideal_cycle_efficiency",
     "carnot_efficiency",
     "corrected_power",
-    "corrected_heat_rate_kJ_per_kWh",
+    "corrected_heat_rate_lhv_kj_per_kwh",
     "corrected_power_model",
-    "corrected_heat_rate_model_kJ_per_kWh",
+    "corrected_heat_rate_lhv_model_kj_per_kwh",
     "corrected_power_curve",
-    "corrected_heat_rate_curve_kJ_per_kWh",
+    "corrected_heat_rate_lhv_curve_kj_per_kwh",
     "heat_balance_closure",
 )
 
@@ -629,9 +629,9 @@ def _water_mass_fraction(
 
 _MODEL_OF = {
     "corrected_power": "corrected_power_model",
-    "corrected_heat_rate_kJ_per_kWh": "corrected_heat_rate_model_kJ_per_kWh",
+    "corrected_heat_rate_lhv_kj_per_kwh": "corrected_heat_rate_lhv_model_kj_per_kwh",
 }
-_CURVE_RESULTS = ("corrected_power_curve", "corrected_heat_rate_curve_kJ_per_kWh")
+_CURVE_RESULTS = ("corrected_power_curve", "corrected_heat_rate_lhv_curve_kj_per_kwh")
 _SOURCE_LABELS = np.array(["measured", "heat_balance"])  # code 0: measured, 1: heat balance
 
 
@@ -892,8 +892,8 @@ def _chunk(
     put("turbine_power", W_t, g_t)
     put("shaft_power", P_shaft, bP | bpar_gen)
     put("heat_input", Q_in, bmf | bfuel)
-    put("heat_rate_kJ_per_kWh", HR, g_fp)
-    put("heat_rate_hhv_kJ_per_kWh", HR_hhv, g_fp)
+    put("heat_rate_lhv_kj_per_kwh", HR, g_fp)
+    put("heat_rate_hhv_kj_per_kwh", HR_hhv, g_fp)
     put("thermal_efficiency", P / Q_in, g_fp)
     put("back_work_ratio", W_c / W_t, g_t)
     put("ideal_brayton_efficiency", eta_B, g_pr)
@@ -901,9 +901,9 @@ def _chunk(
     put("carnot_efficiency", carnot, g_cb)
     put("heat_balance_closure", closure, g_clos)
     put("corrected_power_model", P_corr_m, bad_m)
-    put("corrected_heat_rate_model_kJ_per_kWh", HR_corr_m, bad_m)
+    put("corrected_heat_rate_lhv_model_kj_per_kwh", HR_corr_m, bad_m)
     if model_selected:
-        for k in ("corrected_power", "corrected_heat_rate_kJ_per_kWh"):
+        for k in ("corrected_power", "corrected_heat_rate_lhv_kj_per_kwh"):
             np.copyto(out[k], out[_MODEL_OF[k]])
     if curve:
         out["_T1"][:] = T1
@@ -1143,7 +1143,7 @@ def reconstruct(
     corrections : CorrectionTables, optional
         Unit-supplied correction curves for the curve-based correction.
     correction_method : {"auto", "model", "curve"}
-        Which correction fills ``corrected_power``/``corrected_heat_rate_kJ_per_kWh``:
+        Which correction fills ``corrected_power``/``corrected_heat_rate_lhv_kj_per_kwh``:
         "auto" takes "curve" when ``corrections`` is given, else "model".
     chunk_size : int
         Elements per chunk of the vectorised kernel (default 4096): the Newton solves of a
@@ -1173,7 +1173,7 @@ def reconstruct(
     ...     compressor_discharge_pressure=1.5e6, exhaust_temperature=820.0,
     ...     exhaust_pressure=104000.0, fuel_mass_flow=2.6, generator_power=45.0e6,
     ...     fuel=gas_fuel({"CH4": 1.0}))
-    >>> round(float(out.values["heat_rate_kJ_per_kWh"][0]))
+    >>> round(float(out.values["heat_rate_lhv_kj_per_kwh"][0]))
     10406
     """
     if correction_method not in ("auto", "model", "curve"):
@@ -1266,22 +1266,24 @@ def reconstruct(
                 ambient_pressure=out.pop("_p0"),
                 ambient_relative_humidity=out.pop("_RH"),
                 power=m["P"],
-                heat_rate=out["heat_rate_kJ_per_kWh"],
+                heat_rate=out["heat_rate_lhv_kj_per_kwh"],
             )
             curve_bad = out.pop("_curve_bad") > 0
             out["corrected_power_curve"] = np.where(curve_bad, np.nan, Pc)
-            out["corrected_heat_rate_curve_kJ_per_kWh"] = np.where(curve_bad, np.nan, HRc)
+            out["corrected_heat_rate_lhv_curve_kj_per_kwh"] = np.where(curve_bad, np.nan, HRc)
             if method == "curve":
                 status |= st_c & np.uint32(Reason.CORRECTION_UNAVAILABLE)
         else:
             # curve_correction(None, ...): NaN and CORRECTION_UNAVAILABLE everywhere
             out["corrected_power_curve"] = np.full(n, np.nan)
-            out["corrected_heat_rate_curve_kJ_per_kWh"] = np.full(n, np.nan)
+            out["corrected_heat_rate_lhv_curve_kj_per_kwh"] = np.full(n, np.nan)
             if method == "curve":
                 status |= np.uint32(Reason.CORRECTION_UNAVAILABLE)
     if method == "curve":
         out["corrected_power"] = out["corrected_power_curve"].copy()
-        out["corrected_heat_rate_kJ_per_kWh"] = out["corrected_heat_rate_curve_kJ_per_kWh"].copy()
+        out["corrected_heat_rate_lhv_kj_per_kwh"] = out[
+            "corrected_heat_rate_lhv_curve_kj_per_kwh"
+        ].copy()
     out = {k: out[k] for k in _RESULTS}  # the documented order
     # one small lookup table indexed by a uint8 code (same "<U12" strings as np.where, without
     # broadcasting the two string scalars over the batch)
@@ -1420,27 +1422,26 @@ def _m(
 
 
 _MEASUREMENTS: tuple[FieldSpec, ...] = (
-    _m("ambient_temperature", "K", "T0, dry-bulb air temperature at the inlet", 200.0, 350.0),
-    _m("ambient_pressure", "Pa", "p0, barometric pressure (absolute)", 5.0e4, 1.2e5),
-    _m("ambient_relative_humidity", "1", "RH, fraction 0..1", 0.0, 1.0 + gas.RH_TOLERANCE),
-    _m("compressor_inlet_temperature", "K", "T1, after the inlet filter", 200.0, 350.0),
-    _m("compressor_inlet_pressure", "Pa", "p1 (absolute)", 5.0e4, 1.2e5),
-    _m("compressor_discharge_temperature", "K", "T2", 250.0, 1000.0),
-    _m("compressor_discharge_pressure", "Pa", "p2 (absolute)", 1.0e5, gas.P_MAX_REAL),
-    _m("exhaust_temperature", "K", "T4, turbine exhaust mixed mean", 400.0, 1200.0),
-    _m("exhaust_pressure", "Pa", "p4 (absolute)", 5.0e4, 2.0e5),
+    # station numbers: brayscope numbering (docs/glossary.md, with the SAE AS755 equivalents)
+    _m("ambient_temperature", "K", "T0, station 0: dry-bulb air temperature outside the inlet",
+       200.0, 350.0),
+    _m("ambient_pressure", "Pa", "p0, station 0: barometric pressure (absolute)", 5.0e4, 1.2e5),
+    _m("ambient_relative_humidity", "1",
+       "RH, station 0: fraction 0..1 (over water; over ice below 273.16 K)",
+       0.0, 1.0 + gas.RH_TOLERANCE),
+    _m("compressor_inlet_temperature", "K", "T1, station 1: after the inlet filter and duct",
+       200.0, 350.0),
+    _m("compressor_inlet_pressure", "Pa", "p1, station 1 (absolute)", 5.0e4, 1.2e5),
+    _m("compressor_discharge_temperature", "K", "T2, station 2", 250.0, 1000.0),
+    _m("compressor_discharge_pressure", "Pa", "p2, station 2 (absolute)", 1.0e5, gas.P_MAX_REAL),
+    _m("exhaust_temperature", "K", "T4, station 4: turbine exhaust mixed mean", 400.0, 1200.0),
+    _m("exhaust_pressure", "Pa", "p4, station 4 (absolute)", 5.0e4, 2.0e5),
     _m("fuel_mass_flow", "kg/s", "m_f", 0.0, 100.0),
     _m("generator_power", "W", "P_gen, generator terminals", 0.0, 2.0e9),
-    _m(
-        "air_mass_flow",
-        "kg/s",
-        "m_a if measured; else by heat balance",
-        0.0,
-        2000.0,
-        required=False,
-    ),
+    _m("air_mass_flow", "kg/s", "m_a, station 1, if measured; else by heat balance",
+       0.0, 2000.0, required=False),
     _m("fuel_temperature", "K", "T_f; default 298.15 K (h_f = 0)", 200.0, 700.0, required=False),
-)
+)  # fmt: skip
 
 _PARAMETERS: tuple[FieldSpec, ...] = tuple(
     FieldSpec(name, unit, desc, required=False, low=lo, high=hi, default=DEFAULT_PARAMETERS[name])
@@ -1464,26 +1465,26 @@ _RESULT_UNITS: Mapping[str, tuple[str, str]] = {
     "heat_balance_air_mass_flow": ("kg/s", "air flow from the overall heat balance"),
     "fuel_air_ratio": ("1", "m_f / m_a"),
     "exhaust_mass_flow": ("kg/s", "m_a + m_f"),
-    "turbine_inlet_temperature": ("K", "T3 by combustor heat balance (mixed mean)"),
-    "turbine_inlet_pressure": ("Pa", "p2 (1 - combustor_pressure_loss)"),
+    "turbine_inlet_temperature": ("K", "T3, station 3, by combustor heat balance (mixed mean)"),
+    "turbine_inlet_pressure": ("Pa", "p3 = p2 (1 - combustor_pressure_loss)"),
     "turbine_isentropic_efficiency": ("1", "(h3 - h4) / (h3 - h4s)"),
     "turbine_isentropic_exhaust_temperature": ("K", "T4s"),
     "turbine_power": ("W", "m_g (h3 - h4)"),
     "shaft_power": ("W", "P_gen / eta_gen + P_mech"),
     "heat_input": ("W", "m_f LHV"),
-    "heat_rate_kJ_per_kWh": ("kJ/kWh", "3600 m_f LHV / P_gen"),
-    "heat_rate_hhv_kJ_per_kWh": ("kJ/kWh", "3600 m_f HHV / P_gen"),
+    "heat_rate_lhv_kj_per_kwh": ("kJ/kWh", "3600 m_f LHV / P_gen"),
+    "heat_rate_hhv_kj_per_kwh": ("kJ/kWh", "3600 m_f HHV / P_gen"),
     "thermal_efficiency": ("1", "P_gen / (m_f LHV)"),
     "back_work_ratio": ("1", "W_c / W_t"),
     "ideal_brayton_efficiency": ("1", "air standard, gamma 1.4, measured pressure ratio"),
     "ideal_cycle_efficiency": ("1", "ideal cycle on the real fluid, same PR and T3"),
     "carnot_efficiency": ("1", "1 - T1 / T3"),
     "corrected_power": ("W", "corrected to 15 degC, 101.325 kPa, 60 % RH (correction_method)"),
-    "corrected_heat_rate_kJ_per_kWh": ("kJ/kWh", "corrected heat rate (correction_method)"),
+    "corrected_heat_rate_lhv_kj_per_kwh": ("kJ/kWh", "corrected LHV heat rate (correction_method)"),
     "corrected_power_model": ("W", "model-based corrected power"),
-    "corrected_heat_rate_model_kJ_per_kWh": ("kJ/kWh", "model-based corrected heat rate"),
+    "corrected_heat_rate_lhv_model_kj_per_kwh": ("kJ/kWh", "model-based corrected LHV heat rate"),
     "corrected_power_curve": ("W", "curve-based corrected power"),
-    "corrected_heat_rate_curve_kJ_per_kWh": ("kJ/kWh", "curve-based corrected heat rate"),
+    "corrected_heat_rate_lhv_curve_kj_per_kwh": ("kJ/kWh", "curve-based corrected LHV heat rate"),
     "heat_balance_closure": ("1", "(out - in) / heat input with the measured air flow"),
 }
 

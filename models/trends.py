@@ -8,7 +8,7 @@ rates from a KPI record and the fired hours of the washes, finds wash/recovery s
 record, forecasts when a fitted line reaches a planner's threshold, and smooths live values.
 
 All functions take the KPI in its own unit (efficiency as a fraction, power in W, heat rate in
-J/J or kJ/kWh ...) and time in fired hours [h]; rates are returned *per 1000 fired hours*,
+kJ/kWh ...) and time in fired hours [h]; rates are returned *per 1000 fired hours*,
 the planners' unit.  Statistics are ordinary least squares (NumPy), with standard errors
 from the residual scatter: they assume independent residuals, which a KPI sampled every
 minute does not have (ambient and load cycles correlate neighbouring points).  Fit daily or
@@ -50,7 +50,8 @@ PER_1000_HOURS = 1000.0
 
 @dataclass(frozen=True)
 class FitLine:
-    """A fitted straight line ``y(t) = level + rate_per_hour * (t - t_ref)`` with covariance.
+    """A fitted straight line ``y(t) = level + rate_per_1000h * (t - t_ref) / 1000`` with its
+    covariance.
 
     Attributes
     ----------
@@ -58,28 +59,35 @@ class FitLine:
         Reference time of ``level`` [fired h].
     level : float
         Fitted KPI at ``t_ref`` [KPI unit].
-    rate_per_hour : float
-        Slope [KPI unit per fired h].
+    rate_per_1000h : float
+        Slope [KPI unit per 1000 fired h], the planners' unit.
     cov : ndarray, shape (2, 2)
-        Covariance of (``level``, ``rate_per_hour``).
+        Covariance of (``level``, ``rate_per_1000h``).
     """
 
     t_ref: float
     level: float
-    rate_per_hour: float
+    rate_per_1000h: float
     cov: FloatArray
 
     def value(self, t: ArrayLike) -> FloatArray:
         """Fitted KPI at fired hours ``t`` [KPI unit]."""
-        return np.asarray(
-            self.level + self.rate_per_hour * (np.asarray(t, dtype=np.float64) - self.t_ref)
-        )
+        u = np.asarray(t, dtype=np.float64) - self.t_ref
+        return np.asarray(self.level + self.rate_per_1000h * u / PER_1000_HOURS)
 
     def std_error(self, t: ArrayLike) -> FloatArray:
         """Standard error of the fitted line (the mean, not a new point) at ``t`` [KPI unit]."""
-        u = np.asarray(t, dtype=np.float64) - self.t_ref
+        u = (np.asarray(t, dtype=np.float64) - self.t_ref) / PER_1000_HOURS
         c = self.cov
         return np.asarray(np.sqrt(np.maximum(c[0, 0] + 2 * u * c[0, 1] + u * u * c[1, 1], 0.0)))
+
+
+def _line(t_ref: float, level: float, slope_per_hour: float, cov_per_hour: FloatArray) -> FitLine:
+    """A :class:`FitLine` from a slope per fired hour and the covariance of (level, slope)."""
+    scale = np.array([1.0, PER_1000_HOURS])
+    return FitLine(
+        t_ref, level, slope_per_hour * PER_1000_HOURS, cov_per_hour * np.outer(scale, scale)
+    )
 
 
 _NAN_LINE = FitLine(np.nan, np.nan, np.nan, np.full((2, 2), np.nan))
@@ -91,13 +99,14 @@ class DegradationFit:
 
     Attributes
     ----------
-    recoverable_rate, recoverable_rate_se : float
+    between_wash_rate_per_1000h, between_wash_rate_per_1000h_se : float
         Common slope within wash intervals and its standard error [KPI unit / 1000 h].  This
         is the fouling rate plus the non-recoverable rate (both act between washes).
-    nonrecoverable_rate, nonrecoverable_rate_se : float
-        Slope of the post-wash levels versus fired hours [KPI unit / 1000 h]; NaN without a
-        wash in the record.
-    overall_rate, overall_rate_se : float
+    post_wash_rate_per_1000h, post_wash_rate_per_1000h_se : float
+        Slope of the post-wash levels versus fired hours [KPI unit / 1000 h]: the
+        non-recoverable part, which washing does not restore; NaN without a wash in the
+        record.
+    overall_rate_per_1000h, overall_rate_per_1000h_se : float
         Slope of one straight line through all points [KPI unit / 1000 h].
     r_squared : float
         Coefficient of determination of the piecewise model; NaN for a constant record.
@@ -116,8 +125,9 @@ class DegradationFit:
     residual_std : float
         Residual standard deviation of the piecewise model [KPI unit].
     current : FitLine
-        The line of the latest interval (what happens if no wash is done).
-    nonrecoverable : FitLine
+        The line of the latest interval at the between-wash rate (what happens if no wash
+        is done).
+    post_wash : FitLine
         The line of the post-wash levels (what a perfect wash would give).
     overall : FitLine
         The single straight line through all points.
@@ -128,12 +138,12 @@ class DegradationFit:
         ``"no_spread_in_fired_hours"``, ``"no_wash_in_record"``, ``"constant_record"``.
     """
 
-    recoverable_rate: float
-    recoverable_rate_se: float
-    nonrecoverable_rate: float
-    nonrecoverable_rate_se: float
-    overall_rate: float
-    overall_rate_se: float
+    between_wash_rate_per_1000h: float
+    between_wash_rate_per_1000h_se: float
+    post_wash_rate_per_1000h: float
+    post_wash_rate_per_1000h_se: float
+    overall_rate_per_1000h: float
+    overall_rate_per_1000h_se: float
     r_squared: float
     n: int
     n_dropped: int
@@ -143,7 +153,7 @@ class DegradationFit:
     segment_level_se: FloatArray
     residual_std: float
     current: FitLine
-    nonrecoverable: FitLine
+    post_wash: FitLine
     overall: FitLine
     t_first: float
     t_last: float
@@ -162,7 +172,7 @@ def _nan_fit(n: int, n_dropped: int, reason: str, t_first: float, t_last: float)
         segment_level_se=e,
         residual_std=np.nan,
         current=_NAN_LINE,
-        nonrecoverable=_NAN_LINE,
+        post_wash=_NAN_LINE,
         overall=_NAN_LINE,
         t_first=t_first,
         t_last=t_last,
@@ -180,7 +190,7 @@ def _ols_line(t: FloatArray, y: FloatArray) -> FitLine:
     level = float(y.mean())
     res = y - level - slope * u
     s2 = float(res @ res) / (n - 2)
-    return FitLine(tm, level, slope, np.array([[s2 / n, 0.0], [0.0, s2 / stt]]))
+    return _line(tm, level, slope, np.array([[s2 / n, 0.0], [0.0, s2 / stt]]))
 
 
 def fit_degradation(
@@ -188,7 +198,7 @@ def fit_degradation(
     y: ArrayLike,
     wash_events: ArrayLike | None = None,
 ) -> DegradationFit:
-    """Fit recoverable and non-recoverable degradation rates of a corrected KPI.
+    """Fit the between-wash and post-wash degradation rates of a corrected KPI.
 
     Parameters
     ----------
@@ -216,10 +226,10 @@ def fit_degradation(
     rate between washes), solved by ``numpy.linalg.lstsq``; the covariance is
     :math:`s^2 (X^T X)^{-1}` with :math:`s^2 = \\mathrm{RSS}/(N - K - 1)`.
 
-    Stage 2: the non-recoverable rate is the slope of :math:`c_k` versus :math:`\\tau_k`.
-    With three or more intervals it is an OLS line whose standard error comes from the
-    scatter of the levels (so washes of uneven effectiveness widen it); with two it is the
-    difference quotient, its standard error propagated from stage 1 only.
+    Stage 2: the post-wash (non-recoverable) rate is the slope of :math:`c_k` versus
+    :math:`\\tau_k`.  With three or more intervals it is an OLS line whose standard error
+    comes from the scatter of the levels (so washes of uneven effectiveness widen it); with
+    two it is the difference quotient, its standard error propagated from stage 1 only.
 
     The model assumes degradation linear in fired hours within an interval and an equal
     rate in every interval; fouling often slows as deposits saturate, so fit a window of
@@ -285,7 +295,7 @@ def fit_degradation(
     r = float(beta[K])
     r_se = float(np.sqrt(cov[K, K]))
     last = K - 1
-    current = FitLine(
+    current = _line(
         float(tau[last]),
         float(levels[last]),
         r,
@@ -295,26 +305,26 @@ def fit_degradation(
     overall = _ols_line(t, yv)
 
     if K >= 3:
-        nonrec = _ols_line(tau, levels)
+        post_wash = _ols_line(tau, levels)
     elif K == 2:
         dt = float(tau[1] - tau[0])
         J = np.array([[0.5, 0.5], [-1.0 / dt, 1.0 / dt]])
         cc = cov[:2, :2]
-        nonrec = FitLine(
+        post_wash = _line(
             float(tau.mean()), float(levels.mean()), float(levels[1] - levels[0]) / dt, J @ cc @ J.T
         )
     else:
-        nonrec = _NAN_LINE
+        post_wash = _NAN_LINE
         if reason == "ok":
             reason = "no_wash_in_record"
 
     return DegradationFit(
-        recoverable_rate=r * PER_1000_HOURS,
-        recoverable_rate_se=r_se * PER_1000_HOURS,
-        nonrecoverable_rate=nonrec.rate_per_hour * PER_1000_HOURS,
-        nonrecoverable_rate_se=float(np.sqrt(nonrec.cov[1, 1])) * PER_1000_HOURS,
-        overall_rate=overall.rate_per_hour * PER_1000_HOURS,
-        overall_rate_se=float(np.sqrt(overall.cov[1, 1])) * PER_1000_HOURS,
+        between_wash_rate_per_1000h=r * PER_1000_HOURS,
+        between_wash_rate_per_1000h_se=r_se * PER_1000_HOURS,
+        post_wash_rate_per_1000h=post_wash.rate_per_1000h,
+        post_wash_rate_per_1000h_se=float(np.sqrt(post_wash.cov[1, 1])),
+        overall_rate_per_1000h=overall.rate_per_1000h,
+        overall_rate_per_1000h_se=float(np.sqrt(overall.cov[1, 1])),
         r_squared=float(r2),
         n=n,
         n_dropped=n_dropped,
@@ -324,7 +334,7 @@ def fit_degradation(
         segment_level_se=np.asarray(levels_se, dtype=np.float64),
         residual_std=float(np.sqrt(s2)),
         current=current,
-        nonrecoverable=nonrec,
+        post_wash=post_wash,
         overall=overall,
         t_first=t_first,
         t_last=t_last,
@@ -477,7 +487,7 @@ def forecast_crossing(
     fit: DegradationFit,
     threshold: ArrayLike,
     limit: Literal["lower", "upper"] = "lower",
-    which: Literal["current", "nonrecoverable", "overall"] = "current",
+    which: Literal["current", "post_wash", "overall"] = "current",
     k: float = 2.0,
 ) -> Crossing:
     """Fired hours at which a fitted degradation line reaches a threshold.
@@ -491,7 +501,7 @@ def forecast_crossing(
     limit : {"lower", "upper"}
         ``"lower"``: the KPI must stay above the threshold (efficiency, power);
         ``"upper"``: it must stay below (heat rate).
-    which : {"current", "nonrecoverable", "overall"}
+    which : {"current", "post_wash", "overall"}
         Line to extrapolate: the latest wash interval (no further wash), the post-wash
         levels (a perfect wash every time: when an overhaul is due), or the overall line.
     k : float
@@ -525,15 +535,17 @@ def forecast_crossing(
     """
     if limit not in ("lower", "upper"):
         raise ModelInputError("limit", limit, '"lower" or "upper"')
-    lines = {"current": fit.current, "nonrecoverable": fit.nonrecoverable, "overall": fit.overall}
+    lines = {"current": fit.current, "post_wash": fit.post_wash, "overall": fit.overall}
     if which not in lines:
-        raise ModelInputError("which", which, '"current", "nonrecoverable" or "overall"')
+        raise ModelInputError("which", which, '"current", "post_wash" or "overall"')
     if not (k >= 0.0):
         raise ModelInputError("k", k, "k >= 0")
     line = lines[which]
     thr = np.asarray(threshold, dtype=np.float64)
-    L, r, t0 = line.level, line.rate_per_hour, line.t_ref
-    V = line.cov
+    # the line per fired hour: slope [KPI unit/h] and covariance of (level, slope)
+    L, r, t0 = line.level, line.rate_per_1000h / PER_1000_HOURS, line.t_ref
+    scale = np.array([1.0, 1.0 / PER_1000_HOURS])
+    V = line.cov * np.outer(scale, scale)
     shape = thr.shape
     if not (np.isfinite(L) and np.isfinite(r) and np.isfinite(t0)):
         nan = np.full(shape, np.nan)

@@ -526,7 +526,7 @@ def forward(
         "compressor_isentropic_efficiency": op.compressor_efficiency,
         "turbine_isentropic_efficiency": op.turbine_efficiency,
         "turbine_inlet_temperature": TIT,
-        "heat_rate_kJ_per_kWh": 3600.0 * m_f * LHV / P_gen,
+        "heat_rate_lhv_kj_per_kwh": 3600.0 * m_f * LHV / P_gen,
         "thermal_efficiency": P_gen / (m_f * LHV),
     }
     return {"measurements": measurements, "parameters": parameters, "truth": truth}
@@ -568,7 +568,7 @@ def reconstruct_one(
     dict
         ``compressor_isentropic_efficiency``, ``turbine_isentropic_efficiency``,
         ``turbine_inlet_temperature`` [K], ``air_mass_flow`` [kg/s], ``gas_mass_flow`` [kg/s],
-        ``fuel_air_ratio`` [1], ``shaft_power`` [W], ``heat_rate_kJ_per_kWh``,
+        ``fuel_air_ratio`` [1], ``shaft_power`` [W], ``heat_rate_lhv_kj_per_kwh``,
         ``thermal_efficiency``, ``iterations``.
 
     Notes
@@ -655,7 +655,7 @@ def reconstruct_one(
         "gas_mass_flow": m_g,
         "fuel_air_ratio": far,
         "shaft_power": P_shaft,
-        "heat_rate_kJ_per_kWh": 3600.0 * m_f * lhv / P_gen,
+        "heat_rate_lhv_kj_per_kwh": 3600.0 * m_f * lhv / P_gen,
         "thermal_efficiency": P_gen / (m_f * lhv),
         "iterations": float(it),
     }

@@ -276,7 +276,7 @@ def plant_toml(
     for unit in units:
         out += [
             f"[units.{unit}]",
-            'type = "gas_turbine"',
+            'unit_type = "gas_turbine"',
             f'description = "test unit {unit}"',
             f"fuel = {FUEL}",
             f"parameters = {PARAMETERS.get(unit, PARAMETERS['KR-GT1'])}",
@@ -500,3 +500,31 @@ def http_get(port: int, path: str, timeout: float = 2.0) -> tuple[int, str]:
     except httpx.HTTPError:
         return 0, ""
     return r.status_code, r.text
+
+
+def promtool_check_metrics(text: str) -> bool:
+    """Run Prometheus' own linter, ``promtool check metrics`` (Debian package ``prometheus``),
+    on a scrape; assert that it passes clean.  Returns False, saying why, when promtool is
+    not installed (a failure with BRAYSCOPE_REQUIRE_SERVICES=1, as in CI)."""
+    import pytest
+
+    exe = shutil.which("promtool")
+    if exe is None:
+        why = "promtool not installed (Debian package prometheus): metrics lint not run"
+        if os.environ.get("BRAYSCOPE_REQUIRE_SERVICES") == "1":
+            pytest.fail(why + " and BRAYSCOPE_REQUIRE_SERVICES=1")
+        print(why)
+        return False
+    proc = subprocess.run(
+        [exe, "check", "metrics"],
+        check=False,
+        input=text,
+        capture_output=True,
+        text=True,
+        timeout=60,
+    )
+    print(f"promtool check metrics ({exe}): exit {proc.returncode}")
+    assert proc.returncode == 0 and not proc.stdout.strip() and not proc.stderr.strip(), (
+        proc.stdout + proc.stderr
+    )
+    return True

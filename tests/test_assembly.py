@@ -209,7 +209,7 @@ def test_from_plant_shape() -> None:
         return SimpleNamespace(measurement=m, max_age_s=age)
 
     unit = SimpleNamespace(
-        type="gas_turbine",
+        unit_type="gas_turbine",
         tags=[tag("generator_power", 20.0), tag("generator_power", 45.0), tag("x", 5.0)],
     )
     plant = SimpleNamespace(units={"KR-GT2": unit}, daemon=SimpleNamespace(tick_s=5.0))

@@ -71,9 +71,9 @@ def test_example_snapshot_computes_ok_and_plausibly(capsys: pytest.CaptureFixtur
     assert rc == calc.EXIT_OK, err
     doc = json.loads(out)
     assert isinstance(doc, dict)  # one object in, one object out
-    assert doc["status"] == {"ok": True, "reasons": [], "warnings": [], "errors": []}
+    assert doc["status"] == {"valid": True, "reasons": [], "warnings": [], "errors": []}
     assert doc["id"] == "KR-GT1 2026-06-14T10:00Z"
-    assert doc["timestamp"] == "2026-06-14T10:00:00Z"
+    assert doc["ts"] == "2026-06-14T10:00:00Z"
     assert [
         k for k in doc if k in RESULT_NAMES
     ] == RESULT_NAMES  # every result field, in the unit type's order
@@ -81,9 +81,11 @@ def test_example_snapshot_computes_ok_and_plausibly(capsys: pytest.CaptureFixtur
     # common practice: heavy-duty compressor isentropic efficiency 0.84-0.89
     assert 0.84 <= r["compressor_isentropic_efficiency"] <= 0.89
     # common practice: simple-cycle heat rate 8 600-11 000 kJ/kWh
-    assert 8600.0 <= r["heat_rate_kJ_per_kWh"] <= 11000.0
+    assert 8600.0 <= r["heat_rate_lhv_kj_per_kwh"] <= 11000.0
     # ISO 2314 / common practice: HR = 3600 m_f LHV / P and eta_th = P / (m_f LHV) agree
-    assert r["heat_rate_kJ_per_kWh"] * r["thermal_efficiency"] == pytest.approx(3600.0, rel=1e-9)
+    assert r["heat_rate_lhv_kj_per_kwh"] * r["thermal_efficiency"] == pytest.approx(
+        3600.0, rel=1e-9
+    )
     m = snapshot()["measurements"]
     assert r["compressor_pressure_ratio"] == pytest.approx(
         m["compressor_discharge_pressure"] / m["compressor_inlet_pressure"], rel=1e-12
@@ -105,7 +107,7 @@ def test_pure_methane_heat_rate_matches_iso6976(
     m = rec["measurements"]
     expected_hr = 3600.0 * m["fuel_mass_flow"] * lhv / m["generator_power"]  # kJ/kWh
     # tolerance: ISO 6976 gives the heating value to 0.01 kJ/mol (1e-5 relative)
-    assert r["heat_rate_kJ_per_kWh"] == pytest.approx(expected_hr, rel=5e-5)
+    assert r["heat_rate_lhv_kj_per_kwh"] == pytest.approx(expected_hr, rel=5e-5)
     assert r["heat_input"] == pytest.approx(m["fuel_mass_flow"] * lhv, rel=5e-5)
     assert rc in (calc.EXIT_OK, calc.EXIT_INVALID)
 
@@ -120,7 +122,7 @@ def test_example_flag_prints_the_shipped_json_and_it_pipes(
     assert rc == 0, err
     lines = out2.splitlines()
     assert len(lines) == 1
-    assert json.loads(lines[0])["status"]["ok"] is True
+    assert json.loads(lines[0])["status"]["valid"] is True
 
 
 def test_list_examples_names_existing_paths(capsys: pytest.CaptureFixture[str]) -> None:
@@ -134,12 +136,12 @@ def test_liquid_fuel_example_uses_the_curves(capsys: pytest.CaptureFixture[str])
     rc, out, err = cli([str(EXAMPLES["kr-gt3-liquid-fuel.json"])], capsys)
     assert rc == 0, err
     doc = json.loads(out)
-    assert doc["status"]["ok"] is True
+    assert doc["status"]["valid"] is True
     assert doc["correction_method"] == "curve"
     r = doc
     m = json.loads(EXAMPLES["kr-gt3-liquid-fuel.json"].read_text())["measurements"]
     # HR = 3600 m_f LHV / P with the given LHV (common practice definition)
-    assert r["heat_rate_kJ_per_kWh"] == pytest.approx(
+    assert r["heat_rate_lhv_kj_per_kwh"] == pytest.approx(
         3600.0 * m["fuel_mass_flow"] * 42.8e6 / m["generator_power"], rel=1e-9
     )
     assert r["corrected_power_curve"] is not None
@@ -153,10 +155,10 @@ def test_batch_example_jsonl_in_jsonl_out(capsys: pytest.CaptureFixture[str]) ->
     docs = [json.loads(line) for line in out.splitlines()]
     assert [d["id"] for d in docs] == ids_in
     assert [d["line"] for d in docs] == list(range(1, len(ids_in) + 1))
-    assert all(d["status"]["ok"] for d in docs)
+    assert all(d["status"]["valid"] for d in docs)
     for d in docs:
         assert 0.84 <= d["compressor_isentropic_efficiency"] <= 0.89  # common practice
-        assert 8600.0 <= d["heat_rate_kJ_per_kWh"] <= 11000.0  # common practice
+        assert 8600.0 <= d["heat_rate_lhv_kj_per_kwh"] <= 11000.0  # common practice
 
 
 def test_errors_example_reports_each_mistake(capsys: pytest.CaptureFixture[str]) -> None:
@@ -164,7 +166,7 @@ def test_errors_example_reports_each_mistake(capsys: pytest.CaptureFixture[str])
     assert rc == calc.EXIT_INVALID
     docs = json.loads(out)
     assert isinstance(docs, list)
-    assert [d["status"]["ok"] for d in docs] == [True] + [False] * (len(docs) - 1)
+    assert [d["status"]["valid"] for d in docs] == [True] + [False] * (len(docs) - 1)
     expected_paths = [
         "measurements.compressor_discharge_pressure: must be > compressor_inlet_pressure",
         "measurements: unknown key 'compressor_discharge_temp'",
@@ -201,7 +203,7 @@ def test_mixed_list_keeps_order_and_computes_the_good_ones(
     assert rc == calc.EXIT_INVALID
     docs = json.loads(out)
     assert [d["record"] for d in docs] == [1, 2, 3, 4]
-    assert [d["status"]["ok"] for d in docs] == [True, False, True, False]
+    assert [d["status"]["valid"] for d in docs] == [True, False, True, False]
     assert docs[1]["id"] == "bad pressure"
     assert docs[2]["compressor_isentropic_efficiency"] is not None
     # a lower generator efficiency means more shaft power for the same generator power
@@ -223,7 +225,7 @@ def test_nan_literal_is_rejected(
     rc, out, err = cli(["-"], capsys, monkeypatch, text)
     assert rc == calc.EXIT_INVALID
     doc = json.loads(out)  # our own output is strict JSON
-    assert doc["status"]["ok"] is False
+    assert doc["status"]["valid"] is False
     assert all(doc[n] is None for n in RESULT_NAMES)
     assert "measurements.fuel_mass_flow: NaN/Infinity is not JSON" in err
 
@@ -235,7 +237,7 @@ def test_jsonl_with_a_broken_line(
     rc, out, err = cli(["-"], capsys, monkeypatch, f"{one}\n\n{one[:40]}\n{one}\n")
     assert rc == calc.EXIT_INVALID
     docs = [json.loads(line) for line in out.splitlines()]
-    assert [d["status"]["ok"] for d in docs] == [True, False, True]
+    assert [d["status"]["valid"] for d in docs] == [True, False, True]
     assert [d["line"] for d in docs] == [1, 3, 4]
     assert "record 2 (line 3): not valid JSON" in err
 
@@ -280,7 +282,7 @@ def test_output_file(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None
     rc, out, _ = cli([str(EXAMPLES["kr-gt1-snapshot.json"]), "-o", str(target)], capsys)
     assert rc == 0
     assert out == ""
-    assert json.loads(target.read_text())["status"]["ok"] is True
+    assert json.loads(target.read_text())["status"]["valid"] is True
 
 
 def test_fuel_refused_by_the_model_rejects_its_group_only(
@@ -291,7 +293,7 @@ def test_fuel_refused_by_the_model_rejects_its_group_only(
     rc, out, err = cli(["-"], capsys, monkeypatch, json.dumps([bad, snapshot()]))
     assert rc == calc.EXIT_INVALID
     docs = json.loads(out)
-    assert [d["status"]["ok"] for d in docs] == [False, True]
+    assert [d["status"]["valid"] for d in docs] == [False, True]
     assert docs[0]["status"]["errors"][0].startswith("fuel")
     assert "record 1" in err
 
@@ -306,7 +308,7 @@ def test_record_the_model_cannot_balance_exits_1_with_its_reason(
     rc, out, err = cli(["-"], capsys, monkeypatch, json.dumps(rec))
     assert rc == calc.EXIT_INVALID
     doc = json.loads(out)
-    assert doc["status"]["ok"] is False
+    assert doc["status"]["valid"] is False
     assert doc["status"]["errors"] == []  # accepted by the contract ...
     assert "energy_balance_infeasible" in doc["status"]["reasons"]  # ... refused by the model
     assert doc["air_mass_flow"] is None
@@ -462,7 +464,7 @@ def test_subprocess_pipe() -> None:
     )
     assert proc.returncode == 0, proc.stderr
     (line,) = proc.stdout.splitlines()
-    assert json.loads(line)["status"]["ok"] is True
+    assert json.loads(line)["status"]["valid"] is True
     bad = subprocess.run(
         [sys.executable, "-m", "daemon.cli", "calc", "-"],
         input="{not json",

@@ -86,12 +86,12 @@ def test_example_content_and_converters() -> None:
     t_amb = gt1.tag_for("ambient_temperature")
     assert t_amb is not None and t_amb.to_si(15.0) == pytest.approx(288.15, abs=1e-12)
     rh = gt3.tag_for("ambient_relative_humidity")
-    assert rh is not None and rh.key == "RH" and rh.to_si(60.0) == pytest.approx(0.60)
+    assert rh is not None and rh.key == "ambient_humidity" and rh.to_si(60.0) == pytest.approx(0.60)
     kw = gt3.tag_for("generator_power")
     assert kw is not None and kw.to_si(12_000.0) == pytest.approx(12.0e6)
     assert gt1.fuel_properties is not None and float(gt1.fuel_properties.lhv) > 40e6
     assert gt1.effective_parameters()["generator_efficiency"] == 0.985
-    assert gt1.unit_type.name == "gas_turbine"
+    assert gt1.unit_type == "gas_turbine" and gt1.unit_type_impl.name == "gas_turbine"
 
 
 def test_subscriptions_are_derived_from_the_tags(tmp_path: Path) -> None:
@@ -101,7 +101,7 @@ def test_subscriptions_are_derived_from_the_tags(tmp_path: Path) -> None:
     assert all("+" not in s and "#" not in s for s in plant.subscriptions())
     index = plant.tag_index()
     assert len(index) == plant.n_tags == 38
-    assert index[("kestrel/gt3/data", "PCD")][0] == "KR-GT3"
+    assert index[("kestrel/gt3/data", "discharge_press")][0] == "KR-GT3"
     parent = load_plant(_variant(tmp_path, ('subscriptions = "exact"', 'subscriptions = "parent"')))
     assert parent.subscriptions() == ["kestrel/gt1/+", "kestrel/gt2/+", "kestrel/gt3/data"]
 
@@ -186,8 +186,8 @@ def test_gauge_reference_must_be_mapped_and_absolute(tmp_path: Path) -> None:
     path = _variant(
         tmp_path,
         (
-            'key = "P0"\n  measurement = "ambient_pressure"\n  uom = "kPa"',
-            'key = "P0"\n  measurement = "ambient_pressure"\n  uom = "kPag"',
+            'key = "ambient_press"\n  measurement = "ambient_pressure"\n  uom = "kPa"',
+            'key = "ambient_press"\n  measurement = "ambient_pressure"\n  uom = "kPag"',
         ),
     )
     issues = _issues(path)
@@ -216,10 +216,12 @@ def test_invalid_fuel_is_rejected_by_models_fuel(tmp_path: Path) -> None:
 
 def test_unknown_unit_type_and_nonpositive_tick(tmp_path: Path) -> None:
     path = _variant(
-        tmp_path, ('type = "gas_turbine"', 'type = "gas_turbin"'), ("tick_s = 10.0", "tick_s = 0")
+        tmp_path,
+        ('unit_type = "gas_turbine"', 'unit_type = "gas_turbin"'),
+        ("tick_s = 10.0", "tick_s = 0"),
     )
     issues = _issues(path)
-    assert "did you mean 'gas_turbine'" in _one(issues, "units.KR-GT1.type").fix
+    assert "did you mean 'gas_turbine'" in _one(issues, "units.KR-GT1.unit_type").fix
     tick = _one(issues, "daemon.tick_s")
     assert "greater than 0" in tick.message and tick.fix == "give a number > 0.0"
 
@@ -385,10 +387,15 @@ def test_db_commands(
 ) -> None:
     monkeypatch.setenv("BRAYSCOPE_DATABASE_URL", store_url)
     assert cli.main(["db", "current", "-c", str(EXAMPLE)]) == 3  # empty: behind
+    from daemon.storage import Store
+
+    st = Store(store_url)
+    head = st.head_revision()
+    st.close()
     assert cli.main(["db", "upgrade", "-c", str(EXAMPLE)]) == 0
-    assert "-> 0003_rel" in capsys.readouterr().out
+    assert f"-> {head}" in capsys.readouterr().out
     assert cli.main(["db", "current", "-c", str(EXAMPLE)]) == 0
-    assert "revision: 0003_rel (head 0003_rel, up to date)" in capsys.readouterr().out
+    assert f"revision: {head} (head {head}, up to date)" in capsys.readouterr().out
     assert cli.main(["db", "purge", "-c", str(EXAMPLE), "--days", "30", "--dry-run"]) == 0
     out = capsys.readouterr().out
     assert "would delete: 0 results (older than 30 days), 0 readings (older than 30 days)" in out
@@ -427,7 +434,7 @@ def test_example_aux_tags_convert_to_si_and_stay_out_of_the_unit_type() -> None:
         "aux.bearing1_vibration",
         "aux.lube_oil_temperature",
     ]
-    names = {m.name for m in gt1.unit_type.measurements}
+    names = {m.name for m in gt1.unit_type_impl.measurements}
     assert not any(t.measurement in names for t in gt1.aux_tags())
 
 

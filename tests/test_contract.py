@@ -98,7 +98,7 @@ def test_contract_keys_are_the_published_ones() -> None:
     assert set(fields) - required == CONTRACT_OPTIONAL
     assert set(c.record.model_fields) == {
         "id",
-        "timestamp",
+        "ts",
         "unit_type",
         "measurements",
         "fuel",
@@ -192,14 +192,14 @@ def test_nonfinite_literal_is_rejected_with_its_path(literal: str) -> None:
 def test_nonfinite_anywhere_is_named_beside_the_other_problems() -> None:
     text = (
         json.dumps(example())
-        .replace('"timestamp": "2026-06-14T10:00:00Z"', '"timestamp": Infinity')
+        .replace('"ts": "2026-06-14T10:00:00Z"', '"ts": Infinity')
         .replace('"CH4": 0.931', '"CH4": NaN')
         .replace('"ambient_relative_humidity": 0.62', '"ambient_relative_humidity": 62')
     )
     (raw,) = parse_document(text).records
     msgs = errors_of(raw.value)
     assert [m.split(":")[0] for m in msgs] == [
-        "timestamp",
+        "ts",
         "measurements.ambient_relative_humidity",
         "fuel.composition.CH4",
     ]
@@ -223,7 +223,7 @@ def test_python_nan_is_rejected_too() -> None:
 @pytest.mark.parametrize(
     ("where", "typo", "suggestion"),
     [
-        ((), "timestmap", "timestamp"),
+        ((), "unit_typ", "unit_type"),
         (("measurements",), "compresor_discharge_pressure", "compressor_discharge_pressure"),
         (("parameters",), "generator_eficiency", "generator_efficiency"),
         (("fuel",), "sulphur_mass_fraction", None),

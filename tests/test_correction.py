@@ -68,7 +68,7 @@ def test_reference_ambient_is_identity() -> None:
     v = out.values
     assert out.labels["correction_method"] == "model"
     np.testing.assert_allclose(v["corrected_power"], meas["generator_power"], rtol=1e-9)
-    np.testing.assert_allclose(v["corrected_heat_rate_kJ_per_kWh"], v["heat_rate_kJ_per_kWh"],
+    np.testing.assert_allclose(v["corrected_heat_rate_lhv_kj_per_kwh"], v["heat_rate_lhv_kj_per_kwh"],
                                rtol=1e-9)  # fmt: skip
 
 
@@ -80,9 +80,9 @@ def test_machine_following_the_law_corrects_to_its_rating() -> None:
     meas, out = _run(T0, np.array([99.0e3, 101.3e3, 101.325e3, 100.0e3, 97.0e3]),
                      np.array([0.9, 0.6, 0.6, 0.3, 0.15]))  # fmt: skip
     P_ref = float(ref_meas["generator_power"][0])
-    HR_ref = float(ref.values["heat_rate_kJ_per_kWh"][0])
+    HR_ref = float(ref.values["heat_rate_lhv_kj_per_kwh"][0])
     np.testing.assert_allclose(out.values["corrected_power_model"], P_ref, rtol=1e-7)
-    np.testing.assert_allclose(out.values["corrected_heat_rate_model_kJ_per_kWh"], HR_ref,
+    np.testing.assert_allclose(out.values["corrected_heat_rate_lhv_model_kj_per_kwh"], HR_ref,
                                rtol=1e-7)  # fmt: skip
     # ...while the measured values spread by tens of percent over this ambient range
     assert np.ptp(meas["generator_power"]) / P_ref > 0.2
@@ -97,9 +97,9 @@ def test_hot_day_direction_and_lapse_rate() -> None:
     lapse = -(P[1] / P[0] - 1.0) / 15.0
     assert 0.005 <= lapse <= 0.008
     v = out.values
-    assert v["heat_rate_kJ_per_kWh"][1] > v["heat_rate_kJ_per_kWh"][0]
+    assert v["heat_rate_lhv_kj_per_kwh"][1] > v["heat_rate_lhv_kj_per_kwh"][0]
     assert v["corrected_power"][1] > P[1]
-    assert v["corrected_heat_rate_kJ_per_kWh"][1] < v["heat_rate_kJ_per_kWh"][1]
+    assert v["corrected_heat_rate_lhv_kj_per_kwh"][1] < v["heat_rate_lhv_kj_per_kwh"][1]
 
 
 def test_degraded_machine_stays_degraded_after_correction() -> None:

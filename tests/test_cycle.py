@@ -102,10 +102,10 @@ def test_energy_balance_closes() -> None:
     np.testing.assert_allclose(v["exhaust_mass_flow"], v["air_mass_flow"] + meas["fuel_mass_flow"])
     # heat rate arithmetic: 3600 kJ/kWh per unit of (heat input / power)
     hr = 3600.0 * meas["fuel_mass_flow"] * float(FUEL.lhv) / meas["generator_power"]
-    np.testing.assert_allclose(v["heat_rate_kJ_per_kWh"], hr, rtol=1e-12)
-    np.testing.assert_allclose(v["thermal_efficiency"] * v["heat_rate_kJ_per_kWh"], 3600.0)
+    np.testing.assert_allclose(v["heat_rate_lhv_kj_per_kwh"], hr, rtol=1e-12)
+    np.testing.assert_allclose(v["thermal_efficiency"] * v["heat_rate_lhv_kj_per_kwh"], 3600.0)
     np.testing.assert_allclose(
-        v["heat_rate_hhv_kJ_per_kWh"] / v["heat_rate_kJ_per_kWh"], float(FUEL.hhv / FUEL.lhv)
+        v["heat_rate_hhv_kj_per_kwh"] / v["heat_rate_lhv_kj_per_kwh"], float(FUEL.hhv / FUEL.lhv)
     )
 
 
@@ -266,11 +266,11 @@ def test_bad_inputs_flag_their_element_only() -> None:
     for i in range(1, 9):
         assert np.isnan(v["turbine_isentropic_efficiency"][i]), i
     # results that do not depend on the failed input survive
-    assert np.isfinite(v["heat_rate_kJ_per_kWh"][1]) and np.isfinite(v["air_mass_flow"][1])
+    assert np.isfinite(v["heat_rate_lhv_kj_per_kwh"][1]) and np.isfinite(v["air_mass_flow"][1])
     assert np.isnan(v["compressor_isentropic_efficiency"][1])
     assert np.isfinite(v["compressor_isentropic_efficiency"][6])
-    assert np.isnan(v["heat_rate_kJ_per_kWh"][6])
-    assert np.isnan(v["heat_rate_kJ_per_kWh"][3])
+    assert np.isnan(v["heat_rate_lhv_kj_per_kwh"][6])
+    assert np.isnan(v["heat_rate_lhv_kj_per_kwh"][3])
 
 
 def test_implausible_heat_rate_is_a_warning() -> None:
@@ -281,7 +281,7 @@ def test_implausible_heat_rate_is_a_warning() -> None:
     m["generator_power"] = m["generator_power"] * 0.5
     out = _recon(m)
     assert np.all(out.status & Reason.HEAT_RATE_IMPLAUSIBLE)
-    assert np.all(np.isfinite(out.values["heat_rate_kJ_per_kWh"]))
+    assert np.all(np.isfinite(out.values["heat_rate_lhv_kj_per_kwh"]))
 
 
 # ------------------------------------------------------------------------------------------
@@ -302,19 +302,19 @@ REQUIRED_RESULTS = [
     "turbine_power",
     "shaft_power",
     "heat_input",
-    "heat_rate_kJ_per_kWh",
-    "heat_rate_hhv_kJ_per_kWh",
+    "heat_rate_lhv_kj_per_kwh",
+    "heat_rate_hhv_kj_per_kwh",
     "thermal_efficiency",
     "back_work_ratio",
     "ideal_brayton_efficiency",
     "ideal_cycle_efficiency",
     "carnot_efficiency",
     "corrected_power",
-    "corrected_heat_rate_kJ_per_kWh",
+    "corrected_heat_rate_lhv_kj_per_kwh",
     "corrected_power_model",
-    "corrected_heat_rate_model_kJ_per_kWh",
+    "corrected_heat_rate_lhv_model_kj_per_kwh",
     "corrected_power_curve",
-    "corrected_heat_rate_curve_kJ_per_kWh",
+    "corrected_heat_rate_lhv_curve_kj_per_kwh",
     "heat_balance_closure",
 ]
 

@@ -509,7 +509,7 @@ future_tolerance_s = 60
 past_tolerance_s = 3600
 
 [units.KR-GT1]
-type = "gas_turbine"
+unit_type = "gas_turbine"
 fuel = { lower_heating_value = 42.8e6, carbon_mass_fraction = 0.866, hydrogen_mass_fraction = 0.134 }
 
   [[units.KR-GT1.tags]]

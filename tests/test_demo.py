@@ -9,6 +9,7 @@ values are quarantined, not computed from.
 
 from __future__ import annotations
 
+import re
 import sqlite3
 import subprocess
 import sys
@@ -42,7 +43,7 @@ def demo_run(
 def _rows(db: Path, unit: str) -> list[tuple[float | None, ...]]:
     with sqlite3.connect(db) as con:
         return con.execute(
-            "SELECT compressor_isentropic_efficiency, heat_rate_kJ_per_kWh, status, "
+            "SELECT compressor_isentropic_efficiency, heat_rate_lhv_kj_per_kwh, status, "
             "turbine_isentropic_efficiency, in_generator_power FROM results WHERE unit = ? "
             "ORDER BY ts",
             (unit,),
@@ -56,12 +57,38 @@ def test_demo_exits_zero_and_prints_the_caution(demo_run) -> None:
     # stdout is a pipe here: one plain line per unit per second
     for u in UNITS:
         assert f" {u}: load " in proc.stdout
-    # the steady column: undecided during the R-statistic's 20-sample warm-up (5 s at the
-    # 0.25 s tick), then "no" through the opening fast-forward, whose load and ambient drift
-    # far exceeds the noise (Cao & Rhinehart 1995: R >> 1 under drift); the not_steady
+    # the steady state: undecided during the R-statistic's 20-sample warm-up (5 s at the
+    # 0.25 s tick), then transient through the opening fast-forward, whose load and ambient
+    # drift far exceeds the noise (Cao & Rhinehart 1995: R >> 1 under drift); the not_steady
     # warning is not repeated in the status column
-    assert "steady warm-up" in proc.stdout and "steady no" in proc.stdout
+    assert "steady state undecided" in proc.stdout
+    assert "steady state transient" in proc.stdout
     assert "not_steady" not in proc.stdout
+    # efficiencies shown in per cent with two decimals, not as fractions
+    assert re.search(r"compressor efficiency 8\d\.\d\d %", proc.stdout), proc.stdout[:2000]
+
+
+def test_banner_prints_the_subscribe_command_with_the_actual_port(demo_run) -> None:
+    proc, _ = demo_run
+    port = int(re.search(r"mqtt://127\.0\.0\.1:(\d+)", proc.stdout).group(1))
+    assert f"mosquitto_sub -h 127.0.0.1 -p {port} -t 'brayscope/kestrel-ridge/#' -v" in (
+        proc.stdout
+    )
+    if port != 1883:  # the loopback Mosquitto of a test machine holds 1883
+        assert "port 1883 was taken, so the demo uses" in proc.stdout
+
+
+def test_stuck_humidity_sensor_is_flagged(demo_run) -> None:
+    # KR-GT2's humidity transmitter repeats one value between scenario hours 4 and 16 (wall
+    # seconds 4 to 16 of the opening); the demo plant file's stuck_after_s (1800 s of plant
+    # time, divided by the demo speed) flags it: INPUT_STUCK, no result computed from it
+    _, db = demo_run
+    with sqlite3.connect(db) as con:
+        rows = con.execute(
+            "SELECT reasons, compressor_isentropic_efficiency FROM results WHERE unit = 'KR-GT2'"
+        ).fetchall()
+    stuck = [r for r in rows if "input_stuck" in (r[0] or "")]
+    assert stuck, "the stuck humidity sensor should be flagged within 20 s"
 
 
 def test_results_for_all_units_with_plausible_values(demo_run) -> None:

@@ -17,6 +17,7 @@ runs (default 3).
 
 from __future__ import annotations
 
+import json
 import os
 import random
 import signal
@@ -40,6 +41,7 @@ from live_support import (
     payload,
     plant_toml,
     private_mosquitto,
+    promtool_check_metrics,
     run_daemon,
     snapshot_messages,
     topic_of,
@@ -109,6 +111,17 @@ class Site:
         self.proc.send_signal(signal.SIGTERM)
         rc = self.proc.wait(timeout)
         return rc, time.monotonic() - t0
+
+    def events(self) -> list[tuple[str, str, str | None, str]]:
+        """(source, kind, unit, detail) of the stored events, oldest first."""
+        if not self.db.exists():
+            return []
+        with sqlite3.connect(f"file:{self.db}?mode=ro", uri=True, timeout=10) as c:
+            try:
+                q = "SELECT source, kind, unit, detail FROM events ORDER BY id"
+                return [tuple(r) for r in c.execute(q).fetchall()]
+            except sqlite3.OperationalError:
+                return []
 
     def readings(self) -> int:
         if not self.db.exists():
@@ -275,7 +288,7 @@ def test_broker_restart_http_endpoints_and_tokens(tmp_path: Path) -> None:
                 headers=auth,
             ).json()
             assert hist["count"] >= 1 and hist["results"][-1]["unit"] == "KR-GT1"
-            ev = {"kind": "note", "unit": "KR-GT1", "text": "restart test"}
+            ev = {"kind": "note", "unit": "KR-GT1", "detail": "restart test"}
             r = httpx.post(
                 base + "/api/events", json=ev, headers={"Authorization": f"Bearer {read}"}
             )
@@ -284,7 +297,10 @@ def test_broker_restart_http_endpoints_and_tokens(tmp_path: Path) -> None:
                 base + "/api/events", json=ev, headers={"Authorization": f"Bearer {write}"}
             )
             assert r.status_code == 201
+            assert ("operator", "note", "KR-GT1", "restart test") in site.events()
             assert write not in site.log.read_text() and read not in site.log.read_text()
+            # the scrape of the running daemon passes Prometheus' own linter
+            promtool_check_metrics(metrics)
 
             # broker restart while the daemon runs
             broker.stop()
@@ -307,6 +323,15 @@ def test_broker_restart_http_endpoints_and_tokens(tmp_path: Path) -> None:
                 x for x in metrics.splitlines() if x.startswith("brayscope_broker_reconnects_total")
             )
             assert float(line.split()[-1]) >= 1.0
+            # the outage is recorded once the connection is back (written with a tick)
+            wait_for(
+                lambda: any(k == "reconnect" for _, k, _, _ in site.events()), 10, 0.2,
+                "reconnect event",
+            )  # fmt: skip
+            src, _, unit, detail = next(e for e in site.events() if e[1] == "reconnect")
+            outage = json.loads(detail)
+            assert src == "daemon" and unit is None
+            assert 1.5 <= outage["duration_s"] <= 40.0, outage
             assert site.proc is not None and site.proc.poll() is None
             rc, _ = site.terminate(30)
             assert rc == 0, site.tail()

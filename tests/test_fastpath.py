@@ -174,7 +174,7 @@ def test_array_parameters_and_fuel_batch_do_not_depend_on_chunking() -> None:
     _assert_same(fast.reconstruct(**kw, chunk_size=700), fast.reconstruct(**kw))
     # the bad analyser reading spoils its own snapshot only
     out = fast.reconstruct(**kw)
-    assert np.isnan(out.values["heat_rate_kJ_per_kWh"][4])
+    assert np.isnan(out.values["heat_rate_lhv_kj_per_kwh"][4])
     assert np.isfinite(out.values["compressor_isentropic_efficiency"][4])
 
 

@@ -42,10 +42,10 @@ def _row(unit: str, ts: float) -> dict[str, Any]:
         "status": 0,
         "reasons": [],
         "warnings": [],
-        "steady": True,
+        "steady_state": "steady",
         "r_statistic": 0.9,
         "labels": {"air_mass_flow_source": "heat_balance", "correction_method": "model"},
-        "results": {"compressor_isentropic_efficiency": 0.87, "heat_rate_kJ_per_kWh": None},
+        "results": {"compressor_isentropic_efficiency": 0.87, "heat_rate_lhv_kj_per_kwh": None},
         "inputs": {"generator_power": 4.4e7},
     }
 
@@ -83,8 +83,8 @@ class FakeBackend:
         self.queries.append((unit, since, until, limit))
         return [_row(unit, since + 10 * i) for i in range(min(3, limit))]
 
-    async def add_event(self, kind: str, unit: str | None, text: str) -> None:
-        self.events.append((kind, unit, text))
+    async def add_event(self, kind: str, unit: str | None, detail: str) -> None:
+        self.events.append((kind, unit, detail))
 
 
 class TestClient:
@@ -163,15 +163,20 @@ def test_reads_need_a_token_when_tokens_are_configured(client: TestClient, path:
 
 
 def test_writes_need_the_read_write_token(client: TestClient, backend: FakeBackend) -> None:
-    body = {"kind": "wash", "unit": "KR-GT2", "text": "offline compressor wash"}
+    body = {"kind": "wash", "unit": "KR-GT2", "detail": "offline compressor wash"}
     assert client.post("/api/events", json=body).status_code == 401
     r = client.post("/api/events", json=body, headers={"Authorization": f"Bearer {READ}"})
     assert r.status_code == 403  # RFC 6750 3.1: insufficient scope
     assert backend.events == []
     r = client.post("/api/events", json=body, headers={"Authorization": f"Bearer {WRITE}"})
     assert r.status_code == 201
+    assert r.json() == {"recorded": True, "source": "operator", "kind": "wash", "unit": "KR-GT2"}
     assert backend.events == [("wash", "KR-GT2", "offline compressor wash")]
-    bad = {"kind": "Wash Now!", "text": "x"}
+    # "text" was the name of "detail" before this release: still accepted, with a warning
+    old = {"kind": "note", "text": "inlet filter changed"}
+    r = client.post("/api/events", json=old, headers={"Authorization": f"Bearer {WRITE}"})
+    assert r.status_code == 201 and backend.events[-1] == ("note", None, "inlet filter changed")
+    bad = {"kind": "Wash Now!", "detail": "x"}
     r = client.post("/api/events", json=bad, headers={"Authorization": f"Bearer {WRITE}"})
     assert r.status_code == 422
     r = client.post(
@@ -271,7 +276,7 @@ def test_no_server_errors_on_arbitrary_queries(
 
 
 class TrendBackend(FakeBackend):
-    """Stored results of a compressor losing 0.015 per 1000 h, washed at 150 operating h
+    """Stored results of a compressor losing 0.015 per 1000 h, washed at 150 fired hours
     (+0.004), one result every 10 min, all steady and firing; a plant file with a baseline."""
 
     T0 = 1_800_000_000.0
@@ -310,22 +315,23 @@ def test_trend_route_returns_the_fit_washes_and_forecast() -> None:
     c = TestClient(create_app(b))
     r = c.get(
         "/api/units/KR-GT1/trend",
-        params={"since": str(b.T0 - 60), "until": str(b.T0 + 400 * 3600), "threshold": "0.865"},
+        params={"since": str(b.T0 - 60), "until": str(b.T0 + 400 * 3600), "threshold": "86.5%"},
     )
     assert r.status_code == 200, r.text
     doc = r.json()
     # least-squares slope of a line with one level shift (Draper & Smith 1998, ch. 1)
-    assert doc["fit"]["rate_per_1000h"] == pytest.approx(b.RATE, abs=0.001)
-    assert [round(w["operating_h"]) for w in doc["washes"]] == [150]
+    assert doc["fit"]["between_wash_rate_per_1000h"] == pytest.approx(b.RATE, abs=0.001)
+    assert doc["fit"]["current_line"]["rate_per_1000h"] == pytest.approx(b.RATE, abs=0.001)
+    assert [round(w["fired_hours"]) for w in doc["washes"]] == [150]
     assert doc["washes"][0]["size"] == pytest.approx(b.STEP, abs=5e-4)
     assert doc["baseline"] == pytest.approx(0.872)
     # after the wash: 0.872 + 0.004 - 0.015e-3 * 150 = 0.87375 at 150 h, so 0.865 is reached
     # (0.87375 - 0.865) / 0.015e-3 = 583 h later: 733 h (t* = t0 + (y* - L) / r)
     fc = doc["forecast"]
-    assert fc["status"] == "ahead"
-    assert fc["operating_h"] == pytest.approx(150 + (0.87375 - 0.865) / 0.015e-3, abs=40)
+    assert fc["status"] == "ahead" and fc["threshold"] == pytest.approx(0.865)
+    assert fc["fired_hours"] == pytest.approx(150 + (0.87375 - 0.865) / 0.015e-3, abs=40)
     assert "not a maintenance instruction" in doc["caution"]
-    assert "fired hours are not stored" in doc["time_basis"]
+    assert doc["time_basis"].startswith("fired hours counted from result timestamps")
     # baselines appear with the units
     units = c.get("/api/units").json()["units"]
     assert units[0]["baseline"] == {"compressor_isentropic_efficiency": 0.872}
@@ -336,6 +342,16 @@ def test_trend_route_refuses_bad_parameters_and_is_described() -> None:
     b = TrendBackend()
     c = TestClient(create_app(b))
     assert c.get("/api/units/KR-GT1/trend", params={"kpi": "vibration"}).status_code == 422
+    # an efficiency threshold of 86 would mean 8600 %: refused with what to write instead
+    r = c.get("/api/units/KR-GT1/trend", params={"threshold": "86"})
+    assert r.status_code == 422 and "write 0.86 or 86%" in r.json()["detail"]
+    # old names of this release's renames are still accepted (with a logged warning)
+    r = c.get(
+        "/api/units/KR-GT1/trend",
+        params={"kpi": "heat_rate_kJ_per_kWh", "line": "nonrecoverable", "threshold": "11000"},
+    )
+    assert r.status_code == 200 and r.json()["kpi"] == "heat_rate_lhv_kj_per_kwh"
+    assert r.json()["forecast"]["line"] == "post_wash"
     assert c.get("/api/units/KR-GT9/trend").status_code == 404
     r = c.get("/api/units/KR-GT1/trend", params={"since": "0", "until": str(b.T0)})
     assert r.status_code == 422  # more than 400 days

@@ -72,11 +72,18 @@ def test_names_units_and_labels_follow_prometheus_conventions() -> None:
         "brayscope_turbine_isentropic_efficiency_ratio",
         "brayscope_turbine_inlet_temperature_kelvin",
         "brayscope_corrected_power_watts",
-        "brayscope_heat_rate_joules_per_joule",
-        "brayscope_heat_rate_kj_per_kwh",
-        "brayscope_air_mass_flow_kilograms_per_second",
+        "brayscope_heat_rate_lhv_kj_per_kwh",
+        "brayscope_corrected_heat_rate_lhv_kj_per_kwh",
+        "brayscope_air_mass_flow_grams_per_second",
     ):
         assert needed in names, needed
+    # removed in this release: a heat rate in J/J nobody reads, mass in a non-base unit
+    for gone in (
+        "brayscope_heat_rate_joules_per_joule",
+        "brayscope_corrected_heat_rate_joules_per_joule",
+        "brayscope_air_mass_flow_kilograms_per_second",
+    ):
+        assert gone not in names, gone
 
 
 def test_every_reason_code_is_precreated_and_counted() -> None:
@@ -101,25 +108,25 @@ def test_unknown_units_and_reasons_never_create_series() -> None:
         m.sequence_gap(junk, 3)
         m.sequence_gap(None, 1)
         m.readings_rejected(f"reason_{i}", 1)
-        m.observe_result(junk, 1.0, {"thermal_efficiency": 0.3}, 0, valid=True, steady=True)
+        m.observe_result(junk, 1.0, {"thermal_efficiency": 0.3}, 0, valid=True, steady_state=True)
     assert m.series_count() == before
     refused = families(m)["brayscope_metric_label_refused"]
     total = next(s.value for s in refused.samples if s.name.endswith("_total"))
     assert total == 2000 * 5
 
 
-def test_kpi_values_heat_rate_both_units_and_result_age() -> None:
+def test_kpi_values_in_their_units_and_result_age() -> None:
     clock = Clock(1_800_000_000.0)
     m = Metrics(CollectorRegistry(), UNITS, clock=clock)
     values = {
         "compressor_isentropic_efficiency": 0.871,
         "turbine_inlet_temperature": 1400.0,
-        "heat_rate_kJ_per_kWh": 10_440.0,
-        "corrected_heat_rate_kJ_per_kWh": 10_300.0,
+        "heat_rate_lhv_kj_per_kwh": 10_440.0,
+        "corrected_heat_rate_lhv_kj_per_kwh": 10_300.0,
         "corrected_power": 44.1e6,
         "air_mass_flow": 140.0,
     }
-    m.observe_result("KR-GT1", clock.t - 10.0, values, 0, valid=True, steady=True)
+    m.observe_result("KR-GT1", clock.t - 10.0, values, 0, valid=True, steady_state=True)
     clock.t += 5.0
     fams = families(m)
 
@@ -127,10 +134,11 @@ def test_kpi_values_heat_rate_both_units_and_result_age() -> None:
         f = fams[name]
         return next(s.value for s in f.samples if s.labels.get("unit") == unit)
 
-    # 1 kWh = 3600 kJ (SI Brochure): kJ/kWh / 3600 = J/J
-    assert val("brayscope_heat_rate_joules_per_joule") == pytest.approx(10_440.0 / 3600.0)
-    assert val("brayscope_heat_rate_kj_per_kwh") == pytest.approx(10_440.0)
-    assert val("brayscope_corrected_heat_rate_joules_per_joule") == pytest.approx(10_300 / 3600)
+    assert val("brayscope_heat_rate_lhv_kj_per_kwh") == pytest.approx(10_440.0)
+    assert val("brayscope_corrected_heat_rate_lhv_kj_per_kwh") == pytest.approx(10_300.0)
+    # Prometheus base unit of mass is the gram (prometheus.io, "Metric and label naming"):
+    # 140 kg/s is exported as 140 000 g/s
+    assert val("brayscope_air_mass_flow_grams_per_second") == pytest.approx(140_000.0)
     assert val("brayscope_compressor_isentropic_efficiency_ratio") == pytest.approx(0.871)
     assert val("brayscope_turbine_inlet_temperature_kelvin") == pytest.approx(1400.0)
     assert val("brayscope_corrected_power_watts") == pytest.approx(44.1e6)
@@ -151,7 +159,7 @@ def test_kpi_values_heat_rate_both_units_and_result_age() -> None:
 
 def test_invalid_result_and_undecided_steady_state() -> None:
     m = Metrics(CollectorRegistry(), UNITS)
-    m.observe_result("KR-GT3", 5.0, {}, (1 << 14), valid=False, steady=None)
+    m.observe_result("KR-GT3", 5.0, {}, (1 << 14), valid=False, steady_state=None)
     fams = families(m)
     status = next(
         s.value
@@ -222,13 +230,6 @@ def test_registries_are_isolated_and_default_registry_untouched() -> None:
 def test_kpi_table_names_are_unique_and_have_base_unit_suffixes() -> None:
     names = [k.metric for k in KPI_GAUGES]
     assert len(names) == len(set(names))
-    suffixes = (
-        "_ratio",
-        "_kelvin",
-        "_watts",
-        "_kilograms_per_second",
-        "_joules_per_joule",
-        "_kj_per_kwh",
-    )
+    suffixes = ("_ratio", "_kelvin", "_watts", "_grams_per_second", "_kj_per_kwh")
     for n in names:
         assert n.endswith(suffixes), n

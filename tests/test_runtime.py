@@ -30,6 +30,7 @@ from typing import Any
 
 import numpy as np
 import pytest
+import sqlalchemy as sa
 from live_support import (
     OPERATING_POINTS,
     Publisher,
@@ -45,6 +46,7 @@ from sqlalchemy.engine import make_url
 from daemon.compute import bindings_from_plant, compute_batch
 from daemon.config import load_plant
 from daemon.runtime import Runtime
+from daemon.storage import schema as db_schema
 from daemon.types import Snapshot
 from models.gas_turbine import GAS_TURBINE
 from models.status import WARNING_REASONS, Reason
@@ -115,7 +117,7 @@ def test_batched_compute_equals_direct_calls_per_unit(tmp_path: Path) -> None:
             assert _same(r.values[k], v, 1e-12), (r.unit, k, r.values[k], v)
         assert r.valid, r.reasons
         # heat rate [kJ/kWh] = 3600 / thermal efficiency (definition; common practice)
-        hr, eta = r.values["heat_rate_kJ_per_kWh"], r.values["thermal_efficiency"]
+        hr, eta = r.values["heat_rate_lhv_kj_per_kwh"], r.values["thermal_efficiency"]
         assert hr * eta == pytest.approx(3600.0, rel=1e-9)
         # deviation from the configured baseline, in result units
         assert r.deviations["compressor_isentropic_efficiency"] == pytest.approx(
@@ -139,7 +141,7 @@ def test_unusable_inputs_are_never_used(tmp_path: Path) -> None:
     assert not stale.valid
     assert "input_stale" in stale.reasons
     # the heat rate needs no T2 (fuel flow, LHV and power only)
-    assert math.isfinite(stale.values["heat_rate_kJ_per_kWh"])
+    assert math.isfinite(stale.values["heat_rate_lhv_kj_per_kwh"])
     assert moving.status & Reason.NOT_STEADY
     assert moving.valid  # a transient is a warning, the numbers are computed
     assert "not_steady" in moving.warnings
@@ -457,6 +459,21 @@ async def test_database_outage_nothing_acked_is_lost(
             )
             print(f"recovered and caught up {took:.1f} s after the database came back")
             assert rt.store.count("readings") == len(first) + len(second)
+
+            # the outage is written as a db_outage event once the database answers again
+            def outages() -> list[dict[str, Any]]:
+                with rt.store.engine.connect() as conn:
+                    rows = conn.execute(
+                        sa.select(db_schema.events.c.source, db_schema.events.c.detail).where(
+                            db_schema.events.c.kind == "db_outage"
+                        )
+                    ).all()
+                return [json.loads(d) | {"source": src} for src, d in rows]
+
+            await _until(lambda: bool(outages()), 15, "db_outage event")
+            (outage,) = outages()
+            assert outage["source"] == "daemon" and outage["from"] < outage["until"]
+            assert 5.0 <= outage["duration_s"] <= 60.0, outage
     finally:
         proxy.close()
 

@@ -109,7 +109,7 @@ def test_stuck_sensor_flags_results_after_the_window_and_recovers_when_it_moves(
     assert math.isnan(res.values["compressor_isentropic_efficiency"])
     assert res.status & Reason.INPUT_STUCK and "input_stuck" in res.reasons and not res.valid
     assert not res.status & Reason.INPUT_BAD_QUALITY  # the fault is named, not generic
-    assert math.isfinite(res.values["heat_rate_kJ_per_kWh"])  # needs no T2
+    assert math.isfinite(res.values["heat_rate_lhv_kj_per_kwh"])  # needs no T2
     assert line.assembler.counters.stuck_flagged == 1
     # the transmitter moves by 0.5 K: usable again at once
     line.publish(T0 + 80, **{CDT: t2 + 0.5})
@@ -205,7 +205,7 @@ def test_disagreeing_sensors_give_nan_and_the_reason(tmp_path: Path) -> None:
     assert math.isnan(res.values["compressor_isentropic_efficiency"])
     assert res.status & Reason.INPUT_DISAGREE and "input_disagree" in res.reasons
     assert not res.valid
-    assert math.isfinite(res.values["heat_rate_kJ_per_kWh"])
+    assert math.isfinite(res.values["heat_rate_lhv_kj_per_kwh"])
     # the pair agrees again: the flag goes
     line.publish(T0 + 10, **{f"{CDT}_A": 671.0, f"{CDT}_B": 672.0})
     snap, res = line.tick(T0 + 10)

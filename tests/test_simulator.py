@@ -112,7 +112,7 @@ def test_payload_forms_follow_the_tag_map(plant) -> None:
     assert set(gt1) == {"value", "ts", "seq"} and gt1["ts"] == pytest.approx(T0)
     assert isinstance(json.loads(msgs["kestrel/gt2/TT-AMB"]), float)  # bare number
     gt3 = json.loads(msgs["kestrel/gt3/data"])
-    assert gt3["ts"].endswith("Z") and {"T0", "PCD", "KW"} <= set(gt3)
+    assert gt3["ts"].endswith("Z") and {"ambient_temp", "discharge_press", "power_kw"} <= set(gt3)
 
 
 def test_scripted_faults_are_quarantined_with_their_reason(plant) -> None:

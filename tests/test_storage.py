@@ -66,7 +66,7 @@ def test_migrations_from_empty_match_the_schema(store_url: str) -> None:
     try:
         assert st.current_revision() is None
         st.upgrade()
-        assert st.current_revision() == st.head_revision() == "0003_rel"
+        assert st.current_revision() == st.head_revision()
         with st.engine.connect() as conn:
             tables = set(sa.inspect(conn).get_table_names())
             assert {"units", "results", "readings", "quarantine", "events"} <= tables
@@ -75,7 +75,7 @@ def test_migrations_from_empty_match_the_schema(store_url: str) -> None:
             )
         assert diff == []
         st.upgrade()  # a second run is a no-op
-        assert st.current_revision() == "0003_rel"
+        assert st.current_revision() == st.head_revision()
     finally:
         st.close()
 
@@ -92,7 +92,7 @@ def test_parallel_upgrades_do_not_collide(store_url: str) -> None:
     assert [p.returncode for p in procs] == [0, 0, 0, 0], errors
     st = Store(store_url)
     try:
-        assert st.current_revision() == "0003_rel"
+        assert st.current_revision() == st.head_revision()
     finally:
         st.close()
 
@@ -118,13 +118,20 @@ def test_migration_lists_the_same_result_columns_as_the_schema() -> None:
 
     import daemon
 
-    path = Path(daemon.__file__).parent / "migrations" / "versions" / "0001_initial.py"
-    spec = importlib.util.spec_from_file_location("brayscope_migration_0001", path)
-    assert spec is not None and spec.loader is not None
-    mod = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(mod)
-    assert tuple(mod.RESULT_VALUES) == schema.RESULT_VALUE_COLUMNS
-    assert tuple(mod.RESULT_INPUTS) == schema.RESULT_INPUT_COLUMNS
+    def load(name: str) -> object:
+        path = Path(daemon.__file__).parent / "migrations" / "versions" / f"{name}.py"
+        spec = importlib.util.spec_from_file_location(f"brayscope_migration_{name}", path)
+        assert spec is not None and spec.loader is not None
+        mod = importlib.util.module_from_spec(spec)
+        spec.loader.exec_module(mod)
+        return mod
+
+    first, names = load("0001_initial"), load("0004_names")
+    renamed = dict(names.RESULT_RENAMES)  # type: ignore[attr-defined]
+    values = tuple(renamed.get(c, c) for c in first.RESULT_VALUES)  # type: ignore[attr-defined]
+    assert values == schema.RESULT_VALUE_COLUMNS
+    assert tuple(first.RESULT_INPUTS) == schema.RESULT_INPUT_COLUMNS  # type: ignore[attr-defined]
+    assert renamed["steady"] == "steady_state" and "steady_state" in schema.results.c
 
 
 # ----------------------------------------------------------------------------------------------
@@ -165,7 +172,7 @@ def _result(ts: float, unit: str = "KR-GT1", **values: float) -> ResultRow:
         inputs=inputs,
         status=1 << 13,
         reasons="not_steady",
-        steady=False,
+        steady_state=False,
         r_statistic=2.7,
         air_mass_flow_source="heat_balance",
         correction_method="model",
@@ -189,7 +196,7 @@ def test_result_round_trip(store: Store) -> None:
     ]
     row = latest[0]
     assert row["status"] == 1 << 13 and row["reasons"] == "not_steady"
-    assert row["steady"] is False and row["r_statistic"] == 2.7
+    assert row["steady_state"] is False and row["r_statistic"] == 2.7
     assert row["air_mass_flow_source"] == "heat_balance" and row["correction_method"] == "model"
     for i, name in enumerate(schema.RESULT_VALUE_COLUMNS):
         assert row[name] == 0.5 + i
@@ -255,11 +262,11 @@ def test_events_and_unit_upsert(store: Store) -> None:
     assert store.count("events") == 1
 
     class Unit:
-        type = "gas_turbine"
+        unit_type = "gas_turbine"
         description = "Heavy-duty single-shaft unit, 45 MW class (re-rated)"
 
         def model_dump_json(self, **kwargs: object) -> str:
-            return '{"type": "gas_turbine"}'
+            return '{"unit_type": "gas_turbine"}'
 
     store.upsert_units({"KR-GT1": Unit(), "KR-GT2": Unit()})
     with store.engine.connect() as conn:
@@ -370,7 +377,7 @@ def _decoded_rejects(received_ts: float) -> list[Quarantined]:
         ("kestrel/gt1/TT-AMB", b'{"value": 90.0, "ts": %.1f}' % T0),  # out_of_range
         ("kestrel/gt1/TT-AMB", b'{"value": 15.0, "ts": %.1f}' % (T0 + 3600.0)),  # future
         # a unit object with two bad keys: two rows of one message
-        ("kestrel/gt3/data", b'{"ts": %.1f, "T0": "warm", "NOPE": 1.0}' % T0),
+        ("kestrel/gt3/data", b'{"ts": %.1f, "ambient_temp": "warm", "NOPE": 1.0}' % T0),
         ("kestrel/gt1/TT-AMB", b"{not json"),  # no source time at all
     ]
     out: list[Quarantined] = []
@@ -516,7 +523,7 @@ def test_upgrade_from_0001_keeps_old_quarantine_rows(store_url: str) -> None:
         with st.engine.begin() as conn:  # two identical rows, as 0001 allowed
             conn.execute(sa.insert(schema.quarantine), [old, old])
         st.upgrade()
-        assert st.current_revision() == "0003_rel"
+        assert st.current_revision() == st.head_revision()
         rows = st.quarantine_rows(10)
         assert len(rows) == 2 and all(r["natural_key"] is None for r in rows)
         q = Quarantined(T0, "kestrel/gt1/TT-AMB", b"{", "malformed_json", "line 1", None)

@@ -13,8 +13,9 @@ back by the trend command.  Checked:
 - both washes are found where they were made;
 - the forecast crossing of a threshold agrees with the straight line's t* = t0 + (y* - L)/r
   (the point estimate of Fieller 1954);
-- operating hours count only time while firing and no gaps longer than max_gap_s (fired
-  hours are counted while the unit burns fuel: common practice).
+- fired hours count only time while firing and no gaps longer than max_gap_s (fired
+  hours are counted while the unit burns fuel: common practice);
+- efficiency thresholds are taken as 0.86 or 86 %, and a bare 86 is refused.
 
 The numbers of the machine are invented demo data; the truths compared against are the ones
 put into the forward model.
@@ -47,7 +48,8 @@ from daemon.trend_cmd import (
     KPIS,
     TrendRecord,
     collect,
-    operating_hours,
+    fired_hours,
+    parse_threshold,
     trend_report,
 )
 from daemon.types import Snapshot
@@ -56,9 +58,9 @@ UNIT = "KR-GT1"
 T_START = 1_780_000_000.0  # epoch s of the first result
 STEP_S = 600.0  # one result every 10 min
 ETA_CLEAN = 0.872
-RATE_BETWEEN = -0.012  # per 1000 operating h between washes (fouling + wear)
-RATE_WEAR = -0.002  # per 1000 operating h of the post-wash level (wear only)
-WASHES_H = (500.0, 1000.0)  # operating hours of the two offline washes
+RATE_BETWEEN = -0.012  # per 1000 fired hours between washes (fouling + wear)
+RATE_WEAR = -0.002  # per 1000 fired hours of the post-wash level (wear only)
+WASHES_H = (500.0, 1000.0)  # fired hours of the two offline washes
 TOTAL_H = 1500.0
 WASH_OFFLINE_H = 6.0
 
@@ -117,7 +119,7 @@ def filled(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Path, dict[s
     snaps = [
         Snapshot(
             unit=UNIT,
-            unit_type=cfg.type,
+            unit_type=cfg.unit_type,
             ts=float(ts[i]),
             values={m: float(noisy[m][i]) for m in noisy},
             quality={},
@@ -134,7 +136,7 @@ def filled(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Path, dict[s
             tj = t_wash0 + (j + 0.5) * STEP_S
             a = {k: float(v) for k, v in ambient_conditions(sc, (tj - T_START) / 3600).items()}
             snaps.append(
-                Snapshot(UNIT, cfg.type, tj, shutdown_values(a, gt1.fuel_temperature), {}, {},
+                Snapshot(UNIT, cfg.unit_type, tj, shutdown_values(a, gt1.fuel_temperature), {}, {},
                          None, None)
             )  # fmt: skip
     snaps.sort(key=lambda s: s.ts)
@@ -174,16 +176,16 @@ def test_rates_come_back_from_the_stored_results(filled) -> None:
     assert isinstance(fit, dict)
     # steady, valid, firing results only; 2 days outage and washes not counted as hours
     assert rep["n_steady"] == pytest.approx(facts["n_steady"], abs=5)
-    assert rep["operating_hours"] == pytest.approx(TOTAL_H - STEP_S / 3600, abs=0.5)
+    assert rep["fired_hours"] == pytest.approx(TOTAL_H - STEP_S / 3600, abs=0.5)
     assert fit["reason"] == "ok"
     # between washes: -0.012 per 1000 h put in (OLS slope, Draper & Smith 1998)
-    assert fit["rate_per_1000h"] == pytest.approx(RATE_BETWEEN, abs=0.0006)
+    assert fit["between_wash_rate_per_1000h"] == pytest.approx(RATE_BETWEEN, abs=0.0006)
     # post-wash levels: -0.002 per 1000 h put in (three levels)
-    assert fit["postwash_rate_per_1000h"] == pytest.approx(RATE_WEAR, abs=0.0006)
+    assert fit["post_wash_rate_per_1000h"] == pytest.approx(RATE_WEAR, abs=0.0006)
     washes = rep["washes"]
     assert isinstance(washes, list) and len(washes) == 2
     for w, truth in zip(washes, WASHES_H, strict=True):
-        assert w["operating_h"] == pytest.approx(truth, abs=2.0)
+        assert w["fired_hours"] == pytest.approx(truth, abs=2.0)
         # the wash restores the fouling part: (0.012 - 0.002) per 1000 h times 500 h
         assert w["size"] == pytest.approx(-(RATE_BETWEEN - RATE_WEAR) * 0.5, abs=0.0008)
 
@@ -196,8 +198,8 @@ def test_forecast_matches_the_straight_line_crossing(filled) -> None:
     # truth: post-wash level at 1000 h is 0.872 - 0.002 = 0.870, falling 0.012 per 1000 h:
     # 0.860 is reached 0.010 / 0.012 * 1000 h = 833 h later (t* = t0 + (y* - L) / r)
     expected = 1000.0 + (0.860 - 0.870) / (RATE_BETWEEN / 1000.0)
-    assert fc["operating_h"] == pytest.approx(expected, abs=60.0)
-    assert fc["band_closed"] and fc["operating_h_low"] < fc["operating_h"] < fc["operating_h_high"]
+    assert fc["fired_hours"] == pytest.approx(expected, abs=60.0)
+    assert fc["band_closed"] and fc["fired_hours_low"] < fc["fired_hours"] < fc["fired_hours_high"]
     # an efficiency already above the threshold and a flat heat-rate limit far away
     never = _report(db, threshold=0.95)["forecast"]
     assert isinstance(never, dict) and never["status"] == "already_beyond"
@@ -205,20 +207,20 @@ def test_forecast_matches_the_straight_line_crossing(filled) -> None:
 
 def test_heat_rate_trend_rises_and_washes_step_down(filled) -> None:
     _, db, _ = filled
-    rep = _report(db, kpi="corrected_heat_rate_kJ_per_kWh")
+    rep = _report(db, kpi="corrected_heat_rate_lhv_kj_per_kwh")
     fit = rep["fit"]
     assert isinstance(fit, dict)
     # fouling raises the corrected heat rate between washes (common practice)
-    assert fit["rate_per_1000h"] > 0
+    assert fit["between_wash_rate_per_1000h"] > 0
     washes = rep["washes"]
     assert isinstance(washes, list) and len(washes) == 2
     assert all(w["size"] < 0 for w in washes)
 
 
-def test_operating_hours_count_firing_time_only() -> None:
+def test_fired_hours_count_firing_time_only() -> None:
     t = np.array([0.0, 600, 1200, 1800, 2400, 9000, 9600])
     firing = np.array([True, True, False, True, True, True, True])
-    h = operating_hours(t, firing, max_gap_s=600.0)
+    h = fired_hours(t, firing, max_gap_s=600.0)
     # 0-600 firing; 600-1200 stops; 1200-1800 starts (not firing at 1200); 1800-2400 firing;
     # 2400-9000 gap > max_gap; 9000-9600 firing -> 3 x 600 s
     assert h[-1] == pytest.approx(1800.0 / 3600.0)
@@ -236,14 +238,16 @@ def test_cli_prints_rate_washes_forecast_and_writes_an_svg(filled, tmp_path: Pat
     code = cli_main(
         [
             "trend", "-c", str(plant_path), "--unit", UNIT, "--since", str(T_START - 3600),
-            "--until", str(T_START + 100 * 86400), "--threshold", "0.86", "--plot", str(svg),
+            "--until", str(T_START + 100 * 86400), "--threshold", "86%", "--plot", str(svg),
         ]
     )  # fmt: skip
     out = capsys.readouterr().out
     assert code == 0, out
-    assert "per 1000 operating h" in out and out.count("wash step") == 2
+    # efficiencies in per cent with two decimals, their rates in percentage points
+    assert "percentage points per 1000 fired hours" in out and out.count("wash step") == 2
+    assert "reaches 86.00 %" in out and "baseline     87.20 %" in out
     assert "not a maintenance instruction" in out
-    assert "fired hours are not stored" in out
+    assert "fired hours counted from result timestamps" in out
     root = ET.fromstring(svg.read_text())
     assert (
         root.tag.endswith("svg")
@@ -259,6 +263,48 @@ def test_cli_help_explains_the_time_basis_and_refuses_unknown_units(filled, caps
     with pytest.raises(SystemExit):
         cli_main(["trend", "--help"])
     text = capsys.readouterr().out
-    assert "operating hours" in text.lower() and "--fired-hours-at-start" in text
+    assert "fired hours" in text.lower() and "--fired-hours-at-start" in text
     assert "not a maintenance instruction" in text
     assert cli_main(["trend", "-c", str(plant_path), "--unit", "KR-GT9"]) == 2
+
+
+def test_threshold_takes_a_fraction_or_a_percentage_and_refuses_a_bare_percent(
+    filled, capsys
+) -> None:
+    eff = KPIS["compressor_isentropic_efficiency"]
+    assert parse_threshold("0.85", eff) == parse_threshold("85%", eff) == pytest.approx(0.85)
+    assert parse_threshold(" 85.5 % ", eff) == pytest.approx(0.855)
+    with pytest.raises(ValueError, match=r"write 0\.85 or 85%"):
+        parse_threshold("85", eff)
+    hr = KPIS["corrected_heat_rate_lhv_kj_per_kwh"]
+    assert parse_threshold("10900", hr) == 10900.0
+    with pytest.raises(ValueError, match="efficiencies only"):
+        parse_threshold("5%", hr)
+    plant_path, _, _ = filled
+    code = cli_main(["trend", "-c", str(plant_path), "--unit", UNIT, "--threshold", "85"])
+    err = capsys.readouterr().err
+    assert code == 2 and "--threshold" in err and "write 0.85 or 85%" in err
+
+
+def test_old_option_and_kpi_names_still_work_with_a_warning(filled, capsys) -> None:
+    # renamed in this release (CHANGELOG): accepted for one release, with a message
+    plant_path, _, _ = filled
+    code = cli_main(
+        [
+            "trend", "-c", str(plant_path), "--unit", UNIT, "--since", "0", "--json",
+            "--kpi", "corrected_heat_rate_kJ_per_kWh", "--bin", "2", "--max-gap", "900",
+            "--threshold", "10900", "--line", "nonrecoverable",
+        ]
+    )  # fmt: skip
+    captured = capsys.readouterr()
+    doc = json.loads(captured.out)
+    assert code == 0
+    assert doc["kpi"] == "corrected_heat_rate_lhv_kj_per_kwh" and doc["bin_h"] == 2.0
+    assert doc["max_gap_s"] == 900.0 and doc["forecast"]["line"] == "post_wash"
+    for old, new in (
+        ("corrected_heat_rate_kJ_per_kWh", "corrected_heat_rate_lhv_kj_per_kwh"),
+        ("--bin", "--bin-h"),
+        ("--max-gap", "--max-gap-s"),
+        ("nonrecoverable", "post_wash"),
+    ):
+        assert f"'{old}' is a deprecated name: use '{new}'" in captured.err

@@ -49,9 +49,13 @@ def test_round_trip_rates_from_generator() -> None:
     assert fit.n == 600 and fit.n_segments == 5
     # within an interval both parts act: slope = -(REC + NONREC)
     want_between = -(REC + NONREC) * 1000.0
-    assert abs(fit.recoverable_rate - want_between) < 4 * fit.recoverable_rate_se
-    assert fit.recoverable_rate_se < 0.05 * abs(want_between)
-    assert abs(fit.nonrecoverable_rate - (-NONREC * 1000.0)) < 4 * fit.nonrecoverable_rate_se
+    assert (
+        abs(fit.between_wash_rate_per_1000h - want_between) < 4 * fit.between_wash_rate_per_1000h_se
+    )
+    assert fit.between_wash_rate_per_1000h_se < 0.05 * abs(want_between)
+    assert (
+        abs(fit.post_wash_rate_per_1000h - (-NONREC * 1000.0)) < 4 * fit.post_wash_rate_per_1000h_se
+    )
     assert fit.r_squared > 0.8
     assert fit.residual_std == pytest.approx(SIGMA, rel=0.1)
     np.testing.assert_allclose(fit.segment_start[1:], WASHES)
@@ -64,8 +68,8 @@ def test_standard_errors_match_replica_scatter() -> None:
     for _ in range(300):
         t, y = synthetic(rng, n=200)
         f = fit_degradation(t, y, WASHES)
-        rates.append(f.recoverable_rate)
-        ses.append(f.recoverable_rate_se)
+        rates.append(f.between_wash_rate_per_1000h)
+        ses.append(f.between_wash_rate_per_1000h_se)
     assert np.std(rates, ddof=1) == pytest.approx(np.mean(ses), rel=0.15)
     assert np.mean(rates) == pytest.approx(-(REC + NONREC) * 1000.0, rel=0.02)
 
@@ -74,13 +78,13 @@ def test_overall_line_matches_scipy_linregress() -> None:
     t, y = synthetic(np.random.default_rng(3))
     fit = fit_degradation(t, y)  # no washes given
     ref = stats.linregress(t, y)
-    assert fit.overall_rate == pytest.approx(ref.slope * 1000.0, rel=1e-10)
-    assert fit.overall_rate_se == pytest.approx(ref.stderr * 1000.0, rel=1e-10)
+    assert fit.overall_rate_per_1000h == pytest.approx(ref.slope * 1000.0, rel=1e-10)
+    assert fit.overall_rate_per_1000h_se == pytest.approx(ref.stderr * 1000.0, rel=1e-10)
     # with a single interval the piecewise model is that same line
-    assert fit.recoverable_rate == pytest.approx(ref.slope * 1000.0, rel=1e-9)
+    assert fit.between_wash_rate_per_1000h == pytest.approx(ref.slope * 1000.0, rel=1e-9)
     assert fit.r_squared == pytest.approx(ref.rvalue**2, rel=1e-9)
     assert fit.reason == "no_wash_in_record"
-    assert np.isnan(fit.nonrecoverable_rate)
+    assert np.isnan(fit.post_wash_rate_per_1000h)
 
 
 def test_piecewise_model_matches_numpy_lstsq_with_dummies() -> None:
@@ -92,26 +96,28 @@ def test_piecewise_model_matches_numpy_lstsq_with_dummies() -> None:
     X = np.column_stack([(seg == k).astype(float) for k in range(5)] + [t - start])
     beta, rss, *_ = np.linalg.lstsq(X, y, rcond=None)
     cov = rss[0] / (len(y) - 6) * np.linalg.inv(X.T @ X)
-    assert fit.recoverable_rate == pytest.approx(beta[5] * 1000.0, rel=1e-9)
-    assert fit.recoverable_rate_se == pytest.approx(np.sqrt(cov[5, 5]) * 1000.0, rel=1e-9)
+    assert fit.between_wash_rate_per_1000h == pytest.approx(beta[5] * 1000.0, rel=1e-9)
+    assert fit.between_wash_rate_per_1000h_se == pytest.approx(
+        np.sqrt(cov[5, 5]) * 1000.0, rel=1e-9
+    )
     np.testing.assert_allclose(fit.segment_level, beta[:5], rtol=1e-12)
     ref = stats.linregress(np.concatenate([[t.min()], WASHES]), beta[:5])
-    assert fit.nonrecoverable_rate == pytest.approx(ref.slope * 1000.0, rel=1e-9)
-    assert fit.nonrecoverable_rate_se == pytest.approx(ref.stderr * 1000.0, rel=1e-9)
+    assert fit.post_wash_rate_per_1000h == pytest.approx(ref.slope * 1000.0, rel=1e-9)
+    assert fit.post_wash_rate_per_1000h_se == pytest.approx(ref.stderr * 1000.0, rel=1e-9)
 
 
 def test_edge_cases() -> None:
     f = fit_degradation([1.0, 2.0], [0.8, 0.8])
-    assert f.reason == "too_few_points" and np.isnan(f.recoverable_rate) and f.n == 2
+    assert f.reason == "too_few_points" and np.isnan(f.between_wash_rate_per_1000h) and f.n == 2
     # one point per wash interval: no slope information
     f = fit_degradation([0.0, 10.0, 20.0], [0.8, 0.81, 0.82], wash_events=[5.0, 15.0])
     assert f.reason == "too_few_points"
     f = fit_degradation([5.0, 5.0, 5.0, 5.0], [0.8, 0.81, 0.82, 0.83])
-    assert f.reason == "no_spread_in_fired_hours" and np.isnan(f.overall_rate)
+    assert f.reason == "no_spread_in_fired_hours" and np.isnan(f.overall_rate_per_1000h)
     # constant record: zero rate, zero uncertainty, R² undefined
     f = fit_degradation(np.arange(10.0), np.full(10, 0.86))
-    assert f.recoverable_rate == pytest.approx(0.0, abs=1e-9)
-    assert f.recoverable_rate_se == pytest.approx(0.0, abs=1e-9)
+    assert f.between_wash_rate_per_1000h == pytest.approx(0.0, abs=1e-9)
+    assert f.between_wash_rate_per_1000h_se == pytest.approx(0.0, abs=1e-9)
     assert np.isnan(f.r_squared) and f.reason == "constant_record"
     # NaNs dropped and counted, the rest fitted as if they were absent
     t, y = synthetic(np.random.default_rng(5), n=100)
@@ -122,7 +128,7 @@ def test_edge_cases() -> None:
     f = fit_degradation(t2, y2, WASHES)
     g = fit_degradation(np.delete(t, [3, 50, 70]), np.delete(y, [3, 50, 70]), WASHES)
     assert f.n == 97 and f.n_dropped == 3
-    assert f.recoverable_rate == pytest.approx(g.recoverable_rate, rel=1e-12)
+    assert f.between_wash_rate_per_1000h == pytest.approx(g.between_wash_rate_per_1000h, rel=1e-12)
     with pytest.raises(ModelInputError):
         fit_degradation([1.0, 2.0, 3.0], [1.0, 2.0])
     with pytest.raises(ModelInputError):
@@ -136,8 +142,8 @@ def test_two_intervals_propagated_error() -> None:
     y = ETA0 - NONREC * t - REC * (t - np.where(seg, 1500.0, 0.0)) + rng.normal(0, SIGMA, 300)
     f = fit_degradation(t, y, [1500.0])
     assert f.n_segments == 2 and f.reason == "ok"
-    assert np.isfinite(f.nonrecoverable_rate_se) and f.nonrecoverable_rate_se > 0
-    assert abs(f.nonrecoverable_rate + NONREC * 1000) < 4 * f.nonrecoverable_rate_se
+    assert np.isfinite(f.post_wash_rate_per_1000h_se) and f.post_wash_rate_per_1000h_se > 0
+    assert abs(f.post_wash_rate_per_1000h + NONREC * 1000) < 4 * f.post_wash_rate_per_1000h_se
 
 
 def test_forecast_noise_free_exact() -> None:

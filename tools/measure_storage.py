@@ -103,7 +103,7 @@ def _results(n: int, units: list[str], tick_s: float, rng: random.Random) -> Ite
             inputs={name: rng.uniform(0.1, 1e6) for name in schema.RESULT_INPUT_COLUMNS},
             status=0,
             reasons="",
-            steady=True,
+            steady_state=True,
             r_statistic=rng.uniform(0.9, 1.1),
             air_mass_flow_source="heat_balance",
             correction_method="model",

@@ -372,7 +372,7 @@ def _si_unit_of(tag: TagLike) -> str | None:
 def _measurement_specs(unit: Any) -> dict[str, Any]:
     """Measurement FieldSpecs of a unit's type, by name (empty when not resolvable)."""
     try:
-        ut = unit.unit_type
+        ut = unit.unit_type_impl
     except (RuntimeError, AttributeError):
         return {}
     return {f.name: f for f in getattr(ut, "measurements", ())}

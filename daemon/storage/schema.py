@@ -16,10 +16,15 @@ Tables
 ``readings``    raw canonical readings (SI), unique on (unit, measurement, source_ts)
 ``quarantine``  rejected inputs: truncated payload bytes, topic, reason code, detail; unique
                 on ``natural_key`` (a redelivered message is stored once)
-``events``      daemon events (start, stop, reconnect, database outage ...)
+``events``      events of the daemon (start, stop, broker reconnect, database outage) and of
+                operators (``POST /api/events``: wash, note ...), by ``source``
+
 ``broker_subscriptions``  the MQTT topic filters subscribed under each client id (migration
                 0003_rel): a persistent session keeps its subscriptions and MQTT cannot list
                 them, so the daemon remembers them to unsubscribe those a new plant file drops
+
+All identifiers are lower case (a test inspects the created schema on both backends), so
+hand-written SQL needs no quoting.
 """
 
 from __future__ import annotations
@@ -32,6 +37,8 @@ from sqlalchemy.engine import Dialect
 from sqlalchemy.types import TypeDecorator
 
 __all__ = [
+    "DAEMON_EVENT_KINDS",
+    "EVENT_SOURCES",
     "INPUT_PREFIX",
     "RESULT_INPUT_COLUMNS",
     "RESULT_LABEL_COLUMNS",
@@ -49,6 +56,14 @@ __all__ = [
 
 #: Prefix of the input-measurement columns of ``results`` (keeps them apart from KPI names).
 INPUT_PREFIX = "in_"
+
+#: Values of ``events.source``.
+EVENT_SOURCES: tuple[str, ...] = ("daemon", "operator")
+
+#: ``events.kind`` of the daemon's own events: ``start``, ``stop`` (clean stop), ``reconnect``
+#: (the broker connection came back after a loss; detail: how long it was down),
+#: ``db_outage`` (written when the database answers again; detail: from, to, seconds).
+DAEMON_EVENT_KINDS: tuple[str, ...] = ("start", "stop", "reconnect", "db_outage")
 
 NAMING = {
     "ix": "ix_%(table_name)s_%(column_0_N_name)s",
@@ -136,19 +151,19 @@ RESULT_VALUE_COLUMNS: tuple[str, ...] = (
     "turbine_power",
     "shaft_power",
     "heat_input",
-    "heat_rate_kJ_per_kWh",
-    "heat_rate_hhv_kJ_per_kWh",
+    "heat_rate_lhv_kj_per_kwh",
+    "heat_rate_hhv_kj_per_kwh",
     "thermal_efficiency",
     "back_work_ratio",
     "ideal_brayton_efficiency",
     "ideal_cycle_efficiency",
     "carnot_efficiency",
     "corrected_power",
-    "corrected_heat_rate_kJ_per_kWh",
+    "corrected_heat_rate_lhv_kj_per_kwh",
     "corrected_power_model",
-    "corrected_heat_rate_model_kJ_per_kWh",
+    "corrected_heat_rate_lhv_model_kj_per_kwh",
     "corrected_power_curve",
-    "corrected_heat_rate_curve_kJ_per_kWh",
+    "corrected_heat_rate_lhv_curve_kj_per_kwh",
     "heat_balance_closure",
 )
 
@@ -179,7 +194,8 @@ results = sa.Table(
     sa.Column("ts", UTCDateTime(), primary_key=True),
     sa.Column("status", sa.BigInteger(), nullable=False),
     sa.Column("reasons", sa.Text(), nullable=False, server_default=""),
-    sa.Column("steady", sa.Boolean(), nullable=True),
+    # steady-state test: true steady, false transient, NULL undecided
+    sa.Column("steady_state", sa.Boolean(), nullable=True),
     sa.Column("r_statistic", sa.Double(), nullable=True),
     *(sa.Column(name, sa.String(32), nullable=True) for name in RESULT_LABEL_COLUMNS),
     *(sa.Column(name, sa.Double(), nullable=True) for name in RESULT_VALUE_COLUMNS),
@@ -228,7 +244,10 @@ events = sa.Table(
     metadata,
     _id(),
     sa.Column("ts", UTCDateTime(), nullable=False),
+    # "daemon" or "operator" (migration 0004_names; operator kinds were "operator_<kind>")
+    sa.Column("source", sa.String(16), nullable=False, server_default="daemon"),
     sa.Column("kind", sa.String(64), nullable=False),
+    sa.Column("unit", sa.String(64), nullable=True),
     sa.Column("detail", sa.Text(), nullable=False, server_default=""),
     sa.Index(None, "ts"),
 )

@@ -156,7 +156,7 @@ def quarantine_key(q: QuarantineLike) -> str:
 class UnitLike(Protocol):
     """What :meth:`Store.upsert_units` needs (``daemon.config.UnitConfig`` fits)."""
 
-    type: str
+    unit_type: str
     description: str
 
     def model_dump_json(self, **kwargs: Any) -> str: ...
@@ -180,8 +180,9 @@ class ResultRow:
         :class:`models.status.Reason` bits.
     reasons : str
         Comma-separated reason names (for people reading SQL).
-    steady, r_statistic, air_mass_flow_source, correction_method
-        Steady-state verdict and statistic, labels of how the result was obtained.
+    steady_state, r_statistic, air_mass_flow_source, correction_method
+        Steady-state verdict (True steady, False transient, None undecided) and statistic,
+        labels of how the result was obtained.
     """
 
     unit: str
@@ -190,7 +191,7 @@ class ResultRow:
     inputs: Mapping[str, float] = field(default_factory=dict)
     status: int = 0
     reasons: str = ""
-    steady: bool | None = None
+    steady_state: bool | None = None
     r_statistic: float | None = None
     air_mass_flow_source: str | None = None
     correction_method: str | None = None
@@ -429,7 +430,7 @@ class Store:
         rows = [
             {
                 "name": name,
-                "unit_type": cfg.type,
+                "unit_type": cfg.unit_type,
                 "description": cfg.description,
                 "config_json": cfg.model_dump_json(exclude={"tags"}),
                 "updated_at": now,
@@ -492,7 +493,7 @@ class Store:
                 "ts": s.to_utc_datetime(r.ts),
                 "status": int(r.status),
                 "reasons": r.reasons,
-                "steady": None if r.steady is None else bool(r.steady),
+                "steady_state": None if r.steady_state is None else bool(r.steady_state),
                 "r_statistic": _finite_or_none(r.r_statistic),
                 "air_mass_flow_source": r.air_mass_flow_source,
                 "correction_method": r.correction_method,
@@ -554,11 +555,23 @@ class Store:
         with self.engine.begin() as conn:
             return self._insert_ignore(conn, s.quarantine, rows)
 
-    def write_event(self, kind: str, detail: str = "", ts: float | datetime | None = None) -> None:
-        """Record a daemon event (``kind`` such as ``"start"``, ``"db_outage"``)."""
+    def write_event(
+        self,
+        kind: str,
+        detail: str = "",
+        ts: float | datetime | None = None,
+        *,
+        source: str = "daemon",
+        unit: str | None = None,
+    ) -> None:
+        """Record an event: ``source`` ``"daemon"`` (``kind`` one of
+        :data:`daemon.storage.schema.DAEMON_EVENT_KINDS`) or ``"operator"`` (from the API,
+        any lower-case word such as ``"wash"``), optionally for one ``unit``."""
         row = {
             "ts": s.to_utc_datetime(ts) if ts is not None else datetime.now(UTC),
+            "source": source[:16],
             "kind": kind[:64],
+            "unit": unit,
             "detail": detail[:MAX_DETAIL_CHARS],
         }
         with self.engine.begin() as conn:
