@@ -242,8 +242,8 @@ def make_snapshots(
 
 
 def _compute(measurements: Mapping[str, np.ndarray]) -> Any:
-    from models.fuel import gas_fuel
     from models.gas_turbine import GAS_TURBINE
+    from models.properties.fuel import gas_fuel
 
     fuel = gas_fuel(dict(BENCH_FUEL))
     return GAS_TURBINE.compute(measurements, fuel, dict(BENCH_PARAMETERS))
@@ -313,7 +313,7 @@ def _run_loop(
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeRemainingColumn
 
-    from models.fuel import gas_fuel
+    from models.properties.fuel import gas_fuel
 
     lhv = float(gas_fuel(dict(BENCH_FUEL)).lhv)
     out = {k: np.full(sample, np.nan) for k in _COMPARED}

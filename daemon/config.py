@@ -258,16 +258,16 @@ class FuelConfig(_Section):
         return "gas" if self.composition is not None else "liquid"
 
     def build(self) -> Any:
-        """Return the :class:`models.fuel.FuelProperties` of this fuel.
+        """Return the :class:`models.properties.fuel.FuelProperties` of this fuel.
 
         Raises
         ------
         models.status.ModelInputError
-            Composition or analysis rejected by :mod:`models.fuel`.
+            Composition or analysis rejected by :mod:`models.properties.fuel`.
         ValueError
             Neither or both forms given, or a liquid without its C/H fractions.
         """
-        from models import fuel as fuel_mod
+        from models.properties import fuel as fuel_mod
 
         if self.composition is not None:
             if self.lower_heating_value is not None or self.carbon_mass_fraction is not None:
@@ -413,7 +413,7 @@ class UnitConfig(_Section):
 
     @property
     def fuel_properties(self) -> Any:
-        """:class:`models.fuel.FuelProperties` built from ``fuel`` at load."""
+        """:class:`models.properties.fuel.FuelProperties` built from ``fuel`` at load."""
         return self._fuel_properties
 
     def effective_parameters(self) -> dict[str, float]:

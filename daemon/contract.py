@@ -56,7 +56,7 @@ from pydantic import (
 from pydantic_core import PydanticCustomError
 
 from models.correction import CorrectionCurve, CorrectionTables
-from models.fuel import GAS_COMPONENTS
+from models.properties.fuel import GAS_COMPONENTS
 from models.unit_types import FieldSpec, UnitType
 
 __all__ = [
@@ -294,7 +294,8 @@ SpeciesName = Annotated[str, AfterValidator(_check_species)]
 
 class GasFuelSpec(BaseModel):
     """A gaseous fuel by composition: mole fractions [1] per component of
-    :data:`models.fuel.GAS_COMPONENTS` (summing to 1 within the fuel model's tolerance)."""
+    :data:`models.properties.fuel.GAS_COMPONENTS` (summing to 1 within the fuel model's
+    tolerance)."""
 
     model_config = _STRICT
 
@@ -302,7 +303,7 @@ class GasFuelSpec(BaseModel):
 
     def to_fuel(self) -> Any:
         """Build the model's fuel object (raises :class:`models.status.ModelInputError`)."""
-        from models.fuel import gas_fuel
+        from models.properties.fuel import gas_fuel
 
         return gas_fuel(self.composition)
 
@@ -322,7 +323,7 @@ class LiquidFuelSpec(BaseModel):
 
     def to_fuel(self) -> Any:
         """Build the model's fuel object (raises :class:`models.status.ModelInputError`)."""
-        from models.fuel import liquid_fuel
+        from models.properties.fuel import liquid_fuel
 
         optional = {
             k: v

@@ -6,12 +6,12 @@ Per kg of air, with fuel-air ratio ``f = m_f / m_a`` and complete combustion::
     h_a(T2, p2) + f (h_f + (eta_b - c_loss) LHV) = (1 + f) h_g(T3, p3)            (2)
     p3    = p2 (1 - dp_comb)                                                      (3)
 
-``product_delta`` is the fuel's species change per kg burnt (:class:`models.fuel.FuelProperties`),
-h are sensible enthalpies relative to 298.15 K (the LHV reference), with the real-gas departure
-at p2 and p3.  ``c_loss`` is the casing heat loss as a fraction of the heat input, lumped at the
-combustor.  T3 is the mixed-mean heat-balance temperature: with cooling air mixed in upstream
-of the first rotor it is the ISO 2314-style reference turbine inlet temperature, lower than
-the true firing temperature.
+``product_delta`` is the fuel's species change per kg burnt
+(:class:`models.properties.fuel.FuelProperties`), h are sensible enthalpies relative to 298.15 K
+(the LHV reference), with the real-gas departure at p2 and p3.  ``c_loss`` is the casing heat loss
+as a fraction of the heat input, lumped at the combustor.  T3 is the mixed-mean heat-balance
+temperature: with cooling air mixed in upstream of the first rotor it is the ISO 2314-style
+reference turbine inlet temperature, lower than the true firing temperature.
 
 References
 ----------
@@ -28,9 +28,9 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas
-from models.fuel import FuelProperties
-from models.species import INDEX
+from models.properties import mixtures
+from models.properties.fuel import FuelProperties
+from models.properties.species import INDEX
 from models.status import Reason
 
 __all__ = [
@@ -49,18 +49,18 @@ def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
     np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
 
 
-def stoichiometric_fuel_air_ratio(air: gas.Mixture, fuel: FuelProperties) -> FloatArray:
+def stoichiometric_fuel_air_ratio(air: mixtures.Mixture, fuel: FuelProperties) -> FloatArray:
     """Stoichiometric fuel-air ratio [kg fuel / kg air] of ``fuel`` in the (humid) air ``air``."""
     y_o2 = air.y[..., INDEX["O2"]]
     return np.asarray(y_o2 / -fuel.product_delta[..., INDEX["O2"]], dtype=np.float64)
 
 
-def exhaust_mixture(air: gas.Mixture, fuel: FuelProperties, f: ArrayLike) -> gas.Mixture:
+def exhaust_mixture(air: mixtures.Mixture, fuel: FuelProperties, f: ArrayLike) -> mixtures.Mixture:
     """Exhaust gas of complete combustion at fuel-air ratio f, eq. (1).
 
     Parameters
     ----------
-    air : models.gas.Mixture
+    air : models.properties.mixtures.Mixture
         Combustion air.
     fuel : FuelProperties
     f : array_like
@@ -68,14 +68,14 @@ def exhaust_mixture(air: gas.Mixture, fuel: FuelProperties, f: ArrayLike) -> gas
 
     Returns
     -------
-    models.gas.Mixture
+    models.properties.mixtures.Mixture
     """
     fa = np.asarray(f, dtype=np.float64)
     f_st = stoichiometric_fuel_air_ratio(air, fuel)
     ok = (fa >= 0) & (fa < f_st)
     fs = np.where(ok, fa, np.nan)
     y = (air.y + fs[..., None] * fuel.product_delta) / (1.0 + fs[..., None])
-    return gas.Mixture.from_mass_fractions(np.clip(y, 0.0, None))
+    return mixtures.Mixture.from_mass_fractions(np.clip(y, 0.0, None))
 
 
 def turbine_inlet_pressure(p2: ArrayLike, combustor_pressure_loss: ArrayLike) -> FloatArray:
@@ -93,7 +93,7 @@ class CombustorState:
     Attributes
     ----------
     fuel_air_ratio : f [1]
-    exhaust : models.gas.Mixture  exhaust-gas composition
+    exhaust : models.properties.mixtures.Mixture  exhaust-gas composition
     T3 : turbine inlet temperature [K]
     p3 : turbine inlet pressure [Pa]
     h3 : exhaust-gas enthalpy at station 3 [J/kg gas] (sensible, real gas)
@@ -101,7 +101,7 @@ class CombustorState:
     """
 
     fuel_air_ratio: FloatArray
-    exhaust: gas.Mixture
+    exhaust: mixtures.Mixture
     T3: FloatArray
     p3: FloatArray
     h3: FloatArray
@@ -109,7 +109,7 @@ class CombustorState:
 
 
 def combustor(
-    air: gas.Mixture,
+    air: mixtures.Mixture,
     fuel: FuelProperties,
     T2: ArrayLike,
     p2: ArrayLike,
@@ -124,7 +124,7 @@ def combustor(
 
     Parameters
     ----------
-    air : models.gas.Mixture
+    air : models.properties.mixtures.Mixture
         Combustion air (humid air at the compressor discharge).
     fuel : FuelProperties
     T2, p2 : array_like
@@ -146,8 +146,8 @@ def combustor(
 
     Notes
     -----
-    Solved for T3 by Newton (:meth:`models.gas.Mixture.T_from_h` with the real-gas departure
-    at p3).  NaN + ENERGY_BALANCE_INFEASIBLE where f is not lean-positive.
+    Solved for T3 by Newton (:meth:`models.properties.mixtures.Mixture.T_from_h` with the real-gas
+    departure at p3).  NaN + ENERGY_BALANCE_INFEASIBLE where f is not lean-positive.
     """
     T2a = np.asarray(T2, dtype=np.float64)
     p2a = np.asarray(p2, dtype=np.float64)

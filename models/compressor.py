@@ -2,10 +2,10 @@
 inlet and discharge states (station 1 → 2).
 
 Working fluid: humid air, composition held through the machine.  Enthalpy and entropy are the
-ideal-gas mixture values of :mod:`models.gas` plus the real-gas departure
-(:func:`models.gas.residual`) at the state's own pressure, so ``h(T, p) = h°(T) + Δh(T, p)``
-at stations 1, 2 and 2s.  The departure matters: for dry air at pressure ratio 15 it moves the
-isentropic efficiency by about 0.2 points, the size of a year of fouling.
+ideal-gas mixture values of :mod:`models.properties.mixtures` plus the real-gas departure
+(:func:`models.properties.mixtures.residual`) at the state's own pressure, so ``h(T, p) = h°(T) +
+Δh(T, p)`` at stations 1, 2 and 2s.  The departure matters: for dry air at pressure ratio 15 it
+moves the isentropic efficiency by about 0.2 points, the size of a year of fouling.
 
 Equations::
 
@@ -30,7 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas
+from models.properties import mixtures
 from models.status import Reason
 
 __all__ = [
@@ -86,14 +86,18 @@ def _check_states(T1: FloatArray, p1: FloatArray, T2: FloatArray, p2: FloatArray
     nonphys = ~missing & ~((T1 > 0.0) & (T2 > 0.0) & (p1 > 0.0) & (p2 > 0.0))
     _flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
     ok = ~missing & ~nonphys
-    _flag(status, ok & ~((T1 >= gas.T_MIN) & (T2 <= gas.T_MAX)), Reason.TEMPERATURE_OUT_OF_RANGE)
+    _flag(
+        status,
+        ok & ~((T1 >= mixtures.T_MIN) & (T2 <= mixtures.T_MAX)),
+        Reason.TEMPERATURE_OUT_OF_RANGE,
+    )
     _flag(status, ok & ~(T2 > T1), Reason.DISCHARGE_NOT_HOTTER)
     _flag(status, ok & ~(p2 > p1), Reason.PRESSURE_RATIO_INVALID)
     return status
 
 
 def compressor(
-    mix: gas.Mixture,
+    mix: mixtures.Mixture,
     T1: ArrayLike,
     p1: ArrayLike,
     T2: ArrayLike,
@@ -105,7 +109,7 @@ def compressor(
 
     Parameters
     ----------
-    mix : models.gas.Mixture
+    mix : models.properties.mixtures.Mixture
         Working fluid (humid air), one composition or one per element.
     T1, p1 : array_like
         Inlet temperature [K] and absolute pressure [Pa] (station 1).
@@ -171,7 +175,7 @@ def compressor(
 
 
 def compressor_discharge_temperature(
-    mix: gas.Mixture,
+    mix: mixtures.Mixture,
     T1: ArrayLike,
     p1: ArrayLike,
     p2: ArrayLike,

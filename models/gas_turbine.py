@@ -5,13 +5,14 @@ Stations: 0 ambient, 1 compressor inlet, 2 compressor discharge, 3 turbine inlet
 
 Method (``docs/method.md`` has the full derivation and references)
 -------------------------------------------------------------------
-1. Working fluid: humid air from ambient T0, p0, RH (:func:`models.gas.saturation_pressure`,
-   :func:`models.gas.enhancement_factor`), composition held through the compressor.
+1. Working fluid: humid air from ambient T0, p0, RH
+   (:func:`models.properties.mixtures.saturation_pressure`,
+   :func:`models.properties.mixtures.enhancement_factor`), composition held through the compressor.
    Exhaust gas = air + the species change of burnt fuel (``FuelProperties.product_delta``).
-2. Properties: NASA 7-coefficient ideal-gas mixture data (:mod:`models.thermo_data`) plus the
-   real-gas departure of :func:`models.gas.residual` at every station (the molar departure of
-   air scaled by the mixture's gas constant).  Per kg of *air*, every property of the exhaust
-   gas is linear in the fuel-air ratio f: ``H_g(T, p) = h_a(T, p) + f h_pd(T, p)``, where
+2. Properties: NASA 7-coefficient ideal-gas mixture data (:mod:`models.properties.thermo_data`) plus
+   the real-gas departure of :func:`models.properties.mixtures.residual` at every station (the molar
+   departure of air scaled by the mixture's gas constant).  Per kg of *air*, every property of the
+   exhaust gas is linear in the fuel-air ratio f: ``H_g(T, p) = h_a(T, p) + f h_pd(T, p)``, where
    ``h_pd`` is the enthalpy of the species change of 1 kg of burnt fuel.
 3. Air flow when not measured, overall heat balance (ASME PTC 22 style)::
 
@@ -39,7 +40,8 @@ Speed: the reconstruction runs in chunks that stay in cache, with the mixture co
 tables of each chunk built once (dry air + water + burnt fuel as three basis fluids) and
 Newton solves that stop when the whole chunk has converged.  :mod:`models.compressor`,
 :mod:`models.combustor` and :mod:`models.turbine` hold the same equations on
-:class:`models.gas.Mixture` objects, one component at a time; the tests check the two agree.
+:class:`models.properties.mixtures.Mixture` objects, one component at a time; the tests check the
+two agree.
 
 Advisory monitoring only: not a protection or control system.  Follow the manufacturer's
 limits, site procedures, local codes and licensed engineers.
@@ -63,8 +65,6 @@ from typing import Any, Literal
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas
-from models import thermo_data as _td
 from models.compressor import COMPRESSOR_EFFICIENCY_BAND
 from models.correction import (
     REFERENCE_PRESSURE,
@@ -74,8 +74,10 @@ from models.correction import (
     curve_correction,
     reference_operating_point,
 )
-from models.fuel import FuelProperties
-from models.species import INDEX, N_SPECIES
+from models.properties import mixtures
+from models.properties import thermo_data as _td
+from models.properties.fuel import FuelProperties
+from models.properties.species import INDEX, N_SPECIES
 from models.status import ModelInputError, Reason
 from models.turbine import TURBINE_EFFICIENCY_BAND
 from models.unit_types import ComputeOutput, FieldSpec
@@ -142,7 +144,7 @@ def _species_rows() -> FloatArray:
     r_i = _td.R_UNIVERSAL / _td.MOLAR_MASS
     lo = np.asarray(_td.COEFF_LOW, dtype=np.float64)
     hi = np.asarray(_td.COEFF_HIGH, dtype=np.float64)
-    t = gas.T_REF
+    t = mixtures.T_REF
     h298 = lo[:, 5] + t * (
         lo[:, 0] + t * (lo[:, 1] / 2 + t * (lo[:, 2] / 3 + t * (lo[:, 3] / 4 + t * lo[:, 4] / 5)))
     )
@@ -168,11 +170,11 @@ def _species_rows() -> FloatArray:
 
 _ROWS = _species_rows()
 _MW = np.asarray(_td.MOLAR_MASS, dtype=np.float64)
-_Y_DRY = np.asarray(gas.DRY_AIR * _MW / np.sum(gas.DRY_AIR * _MW))
+_Y_DRY = np.asarray(mixtures.DRY_AIR * _MW / np.sum(mixtures.DRY_AIR * _MW))
 _M_DRY = float(1.0 / np.sum(_Y_DRY / _MW))
 _M_W = float(_MW[INDEX["H2O"]])
-_R_DRY = gas.R_UNIVERSAL / _M_DRY
-_R_W = gas.R_UNIVERSAL / _M_W
+_R_DRY = mixtures.R_UNIVERSAL / _M_DRY
+_R_W = mixtures.R_UNIVERSAL / _M_W
 _TAB_DRY = np.einsum("s,rsk->rk", _Y_DRY, _ROWS)  # (2, 17)
 _TAB_WMD = _ROWS[:, INDEX["H2O"], :] - _TAB_DRY  # water minus dry air
 _Y_O2_DRY = float(_Y_DRY[INDEX["O2"]])
@@ -216,7 +218,7 @@ def _virial_coeffs(bc: tuple[float, ...], cc: tuple[float, ...], p: Num) -> list
 
 
 def _hr(T: FloatArray, p: Num) -> FloatArray:
-    """Real-gas departure (h - h_ig) / (R T) of the air fit of :func:`models.gas.residual`."""
+    """Real-gas departure (h - h_ig) / (R T) of the air fit (``mixtures.residual``)."""
     return _virial(_HR_B, _HR_C, T, p)
 
 
@@ -501,7 +503,7 @@ def _fuel_data(fuel: FuelProperties, n: int) -> _FuelData:
     if pd.ndim == 2 and pd.shape[0] != n:
         raise ModelInputError("fuel", pd.shape[0], f"a single fuel or a batch of {n}")
     tab = np.einsum("...s,rsk->rk...", pd, _ROWS)
-    R = np.asarray(gas.R_UNIVERSAL * (pd @ (1.0 / _MW)))
+    R = np.asarray(mixtures.R_UNIVERSAL * (pd @ (1.0 / _MW)))
     o2 = np.asarray(-pd[..., INDEX["O2"]])
     valid = np.asarray(np.isfinite(lhv) & (lhv > 0) & np.isfinite(hhv) & (o2 > 0))
     return _FuelData(lhv, hhv, tab, R, o2, valid)
@@ -518,12 +520,12 @@ class _FuelHeat:
 def _fuel_T_used(Tf: FloatArray) -> FloatArray:
     """Fuel temperature the enthalpy is evaluated at: default for NaN, 298.15 K if invalid."""
     T = np.where(np.isnan(Tf), DEFAULT_FUEL_TEMPERATURE, Tf)
-    return np.where((T >= gas.T_MIN) & (T <= gas.T_MAX), T, gas.T_REF)
+    return np.where((T >= mixtures.T_MIN) & (T <= mixtures.T_MAX), T, mixtures.T_REF)
 
 
 def _fuel_enthalpy(fuel: FuelProperties, Tf: FloatArray) -> FloatArray:
     """Sensible enthalpy of the fuel at Tf [J/kg], 0 at 298.15 K, NaN where Tf is NaN."""
-    if np.all(Tf == gas.T_REF):
+    if np.all(Tf == mixtures.T_REF):
         return np.zeros(Tf.shape)
     return np.asarray(fuel.sensible_enthalpy(Tf), dtype=np.float64)
 
@@ -616,10 +618,10 @@ _RESULTS = (
 def _water_mass_fraction(
     T0: FloatArray, p0: FloatArray, RH: FloatArray, status: StatusArray
 ) -> FloatArray:
-    """Water mass fraction of humid air (as models.gas.humid_air, without the full vector)."""
+    """Water mass fraction of humid air (as ``mixtures.humid_air``, without the full vector)."""
     sat = RH >= 1.0
     rc = np.minimum(RH, 1.0)
-    xw = rc * gas.enhancement_factor(T0, p0) * gas.saturation_pressure(T0) / p0
+    xw = rc * mixtures.enhancement_factor(T0, p0) * mixtures.saturation_pressure(T0) / p0
     boil = xw >= 1.0
     _flag(status, sat | boil, Reason.HUMIDITY_SATURATED)
     xw = np.minimum(xw, 0.999)
@@ -682,11 +684,11 @@ def _chunk(
             else np.asarray(h_f.fuel.sensible_enthalpy(_fuel_T_used(m["Tf"])), dtype=np.float64)
         )
     # ---- input checks, per quantity -------------------------------------------------------
-    Tr = (gas.T_MIN, gas.T_MAX)
-    pr = (0.0, gas.P_MAX_REAL)
+    Tr = (mixtures.T_MIN, mixtures.T_MAX)
+    pr = (0.0, mixtures.P_MAX_REAL)
     bT0 = _check(m["T0"], st, rng=Tr)
     bp0 = _check(m["p0"], st, rng=pr, rng_reason=Reason.PRESSURE_OUT_OF_RANGE)
-    bRH = _check(m["RH"], st, lo=-1e-300, hi=1.0 + gas.RH_TOLERANCE)
+    bRH = _check(m["RH"], st, lo=-1e-300, hi=1.0 + mixtures.RH_TOLERANCE)
     bT1 = _check(m["T1"], st, rng=Tr)
     bp1 = _check(m["p1"], st, rng=pr, rng_reason=Reason.PRESSURE_OUT_OF_RANGE)
     bT2 = _check(m["T2"], st, rng=Tr)
@@ -801,7 +803,7 @@ def _chunk(
     T3g = np.clip(T2c + dq / gasf.cp(T3g), 300.0, 2900.0)
     T3, conv3 = gasf.T_from_h(H3, p3, T3g, groups)
     g_cb = g_c | g_f | bTf | bpar_cb
-    t3_oor = ~g_cb & ~((T3 >= gas.T_MIN) & (T3 <= gas.T_MAX))
+    t3_oor = ~g_cb & ~((T3 >= mixtures.T_MIN) & (T3 <= mixtures.T_MAX))
     _flag(st, t3_oor, Reason.TEMPERATURE_OUT_OF_RANGE)
     _flag(st, ~conv3 & ~g_cb, Reason.NOT_CONVERGED)
     g_cb |= t3_oor | ~conv3
@@ -1131,8 +1133,8 @@ def reconstruct(
     generator_power : array_like
         P_gen [W].
     fuel : FuelProperties
-        From :func:`models.fuel.gas_fuel` or :func:`models.fuel.liquid_fuel`; one fuel or a
-        batch of the same length N.
+        From :func:`models.properties.fuel.gas_fuel` or :func:`models.properties.fuel.liquid_fuel`;
+        one fuel or a batch of the same length N.
     air_mass_flow : array_like, optional
         Measured m_a [kg/s]; NaN elements (or None) use the heat balance.
     fuel_temperature : array_like, optional
@@ -1166,7 +1168,7 @@ def reconstruct(
 
     Examples
     --------
-    >>> from models.fuel import gas_fuel
+    >>> from models.properties.fuel import gas_fuel
     >>> out = reconstruct(ambient_temperature=288.15, ambient_pressure=101325.0,
     ...     ambient_relative_humidity=0.6, compressor_inlet_temperature=288.15,
     ...     compressor_inlet_pressure=100300.0, compressor_discharge_temperature=660.0,
@@ -1221,7 +1223,7 @@ def reconstruct(
         # h_f = 0 shortcut of _fuel_enthalpy still decided over the whole batch
         m["Tf"] = Tf
         zero = fuel_temperature is None or all(
-            np.all(_fuel_T_used(Tf[i : i + step]) == gas.T_REF) for i in range(0, n, step)
+            np.all(_fuel_T_used(Tf[i : i + step]) == mixtures.T_REF) for i in range(0, n, step)
         )
         hf_src = _FuelHeat(fuel, zero)
     else:
@@ -1369,9 +1371,9 @@ def simulate(
     T0 = a(T0)
     p0, RH = a(ambient_pressure), a(ambient_relative_humidity)
     status = np.zeros(shape, dtype=np.uint32)
-    _check(T0, status, rng=(gas.T_MIN, gas.T_MAX))
+    _check(T0, status, rng=(mixtures.T_MIN, mixtures.T_MAX))
     _check(p0, status)
-    _check(RH, status, lo=-1e-300, hi=1.0 + gas.RH_TOLERANCE)
+    _check(RH, status, lo=-1e-300, hi=1.0 + mixtures.RH_TOLERANCE)
     PR, ma = a(pressure_ratio), a(air_mass_flow)
     _check(ma, status)
     _flag(status, ~(PR > 1.0), Reason.PRESSURE_RATIO_INVALID)
@@ -1379,7 +1381,7 @@ def simulate(
     _flag(status, ~((eta_c > 0) & (eta_c <= 1) & (eta_t > 0) & (eta_t <= 1)),
           Reason.EFFICIENCY_OUT_OF_RANGE)  # fmt: skip
     T3 = a(turbine_inlet_temperature)
-    _check(T3, status, rng=(gas.T_MIN, gas.T_MAX))
+    _check(T3, status, rng=(mixtures.T_MIN, mixtures.T_MAX))
     Tf = a(fuel_temperature)
     fd = _fuel_data(fuel, n)
     p1 = p0 * (1.0 - a(inlet_pressure_loss))
@@ -1428,12 +1430,13 @@ _MEASUREMENTS: tuple[FieldSpec, ...] = (
     _m("ambient_pressure", "Pa", "p0, station 0: barometric pressure (absolute)", 5.0e4, 1.2e5),
     _m("ambient_relative_humidity", "1",
        "RH, station 0: fraction 0..1 (over water; over ice below 273.16 K)",
-       0.0, 1.0 + gas.RH_TOLERANCE),
+       0.0, 1.0 + mixtures.RH_TOLERANCE),
     _m("compressor_inlet_temperature", "K", "T1, station 1: after the inlet filter and duct",
        200.0, 350.0),
     _m("compressor_inlet_pressure", "Pa", "p1, station 1 (absolute)", 5.0e4, 1.2e5),
     _m("compressor_discharge_temperature", "K", "T2, station 2", 250.0, 1000.0),
-    _m("compressor_discharge_pressure", "Pa", "p2, station 2 (absolute)", 1.0e5, gas.P_MAX_REAL),
+    _m("compressor_discharge_pressure", "Pa", "p2, station 2 (absolute)", 1.0e5,
+       mixtures.P_MAX_REAL),
     _m("exhaust_temperature", "K", "T4, station 4: turbine exhaust mixed mean", 400.0, 1200.0),
     _m("exhaust_pressure", "Pa", "p4, station 4 (absolute)", 5.0e4, 2.0e5),
     _m("fuel_mass_flow", "kg/s", "m_f", 0.0, 100.0),
@@ -1493,8 +1496,8 @@ _RESULT_UNITS: Mapping[str, tuple[str, str]] = {
 class GasTurbineType:
     """The single-shaft gas turbine unit type (implements :class:`models.unit_types.UnitType`).
 
-    ``fuel`` of :meth:`compute` is a :class:`models.fuel.FuelProperties`; ``corrections`` an
-    optional :class:`models.correction.CorrectionTables`.
+    ``fuel`` of :meth:`compute` is a :class:`models.properties.fuel.FuelProperties`; ``corrections``
+    an optional :class:`models.correction.CorrectionTables`.
     """
 
     name: str = "gas_turbine"
@@ -1530,7 +1533,9 @@ class GasTurbineType:
             if k not in known_p:
                 raise ModelInputError("parameters", k, ", ".join(sorted(known_p)))
         if not isinstance(fuel, FuelProperties):
-            raise ModelInputError("fuel", type(fuel).__name__, "a models.fuel.FuelProperties")
+            raise ModelInputError(
+                "fuel", type(fuel).__name__, "a models.properties.fuel.FuelProperties"
+            )
         if corrections is not None and not isinstance(corrections, CorrectionTables):
             raise ModelInputError(
                 "corrections", type(corrections).__name__, "models.correction.CorrectionTables"

@@ -28,9 +28,9 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas
 from models.combustor import exhaust_mixture
-from models.fuel import FuelProperties
+from models.properties import mixtures
+from models.properties.fuel import FuelProperties
 from models.status import Reason
 
 __all__ = [
@@ -150,7 +150,7 @@ class BraytonCycle:
 
 
 def brayton_cycle(
-    air: gas.Mixture,
+    air: mixtures.Mixture,
     T1: ArrayLike,
     p1: ArrayLike,
     pressure_ratio: ArrayLike,
@@ -166,7 +166,7 @@ def brayton_cycle(
 
     Parameters
     ----------
-    air : models.gas.Mixture
+    air : models.properties.mixtures.Mixture
         Working fluid at the compressor.
     T1, p1 : array_like
         Compressor inlet temperature [K] and pressure [Pa].
@@ -204,9 +204,9 @@ def brayton_cycle(
     1393.1 K, burning its pipeline gas; first ideal, then with the machine's reconstructed
     component efficiencies:
 
-    >>> from models.fuel import gas_fuel
-    >>> x, _ = gas.humid_air(291.45, 100850.0, 0.62)
-    >>> air = gas.Mixture.from_mole_fractions(x)
+    >>> from models.properties.fuel import gas_fuel
+    >>> x, _ = mixtures.humid_air(291.45, 100850.0, 0.62)
+    >>> air = mixtures.Mixture.from_mole_fractions(x)
     >>> fuel = gas_fuel({"CH4": 0.931, "C2H6": 0.038, "C3H8": 0.008, "n-C4H10": 0.0015,
     ...     "i-C4H10": 0.0012, "n-C5H12": 0.0003, "N2": 0.012, "CO2": 0.008})
     >>> ideal = brayton_cycle(air, 291.05, 99900.0, 15.0, 1393.1, fuel=fuel)
@@ -231,7 +231,7 @@ def brayton_cycle(
     _flag(status, np.broadcast_to(~eff_ok, shape), Reason.EFFICIENCY_OUT_OF_RANGE)
     p2 = p1a * r
 
-    def h(m: gas.Mixture, T: FloatArray, p: FloatArray) -> FloatArray:
+    def h(m: mixtures.Mixture, T: FloatArray, p: FloatArray) -> FloatArray:
         return m.h_real(T, p) if real_gas else m.h(T)
 
     T2s, st = air.isentropic_T(T1a, p1a, p2, real_gas=real_gas)

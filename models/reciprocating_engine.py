@@ -38,7 +38,7 @@ from typing import Literal
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas, machine
+from models import machine
 from models.combustor import exhaust_mixture, stoichiometric_fuel_air_ratio
 from models.components import reciprocating as rc
 from models.compressor import compressor_discharge_temperature
@@ -49,7 +49,8 @@ from models.correction_iso3046 import (
     spark_ignition_correction_factor,
 )
 from models.cycles import reciprocating as cyc
-from models.fuel import FuelProperties
+from models.properties import mixtures
+from models.properties.fuel import FuelProperties
 from models.status import WARNING_REASONS, ModelInputError, Reason
 
 __all__ = [
@@ -104,27 +105,27 @@ def _arr(v: ArrayLike, shape: tuple[int, ...]) -> FloatArray:
     return np.array(np.broadcast_to(np.asarray(v, dtype=np.float64), shape), dtype=np.float64)
 
 
-def _air(T0: FloatArray, p0: FloatArray, rh: FloatArray) -> tuple[gas.Mixture, StatusArray]:
-    x, st = gas.humid_air(T0, p0, rh)
-    return gas.Mixture.from_mole_fractions(x), st
+def _air(T0: FloatArray, p0: FloatArray, rh: FloatArray) -> tuple[mixtures.Mixture, StatusArray]:
+    x, st = mixtures.humid_air(T0, p0, rh)
+    return mixtures.Mixture.from_mole_fractions(x), st
 
 
 def _charge(
-    air: gas.Mixture, fuel: FuelProperties, m_a: FloatArray, m_f: FloatArray, premixed: bool
-) -> gas.Mixture:
+    air: mixtures.Mixture, fuel: FuelProperties, m_a: FloatArray, m_f: FloatArray, premixed: bool
+) -> mixtures.Mixture:
     """Charge inducted: air, or air and fuel gas mixed upstream of the compressor."""
     if not premixed:
         return air
     if fuel.composition is None:
         raise ModelInputError("premixed", True, "a gas fuel (composition) for a premixed charge")
-    fuel_gas = gas.Mixture.from_mole_fractions(fuel.composition)
+    fuel_gas = mixtures.Mixture.from_mole_fractions(fuel.composition)
     with np.errstate(invalid="ignore"):
         wa = np.where(m_a > 0, m_a, np.nan)
         wf = np.where(m_f > 0, m_f, np.nan)
-    return gas.Mixture.blend([(air, wa), (fuel_gas, wf)])
+    return mixtures.Mixture.blend([(air, wa), (fuel_gas, wf)])
 
 
-def _stoich_air(air: gas.Mixture, fuel: FuelProperties) -> FloatArray:
+def _stoich_air(air: mixtures.Mixture, fuel: FuelProperties) -> FloatArray:
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.asarray(1.0 / stoichiometric_fuel_air_ratio(air, fuel), dtype=np.float64)
 
@@ -256,7 +257,7 @@ def simulate_engine(
     rho = m_ch / (eta_v * geometry.displacement * geometry.cycles_per_second(w))
     p_r = rho * charge.R * Tr
     for _ in range(6):  # p = rho Z(T, p) R T; Z - 1 ~ 1e-3 so each pass gains three digits
-        p_r = rho * charge.R * Tr * gas.compressibility(Tr, p_r)
+        p_r = rho * charge.R * Tr * mixtures.compressibility(Tr, p_r)
     p_in = p0 * (1.0 - np.asarray(inlet_pressure_loss))
     p_out = p_r / (1.0 - np.asarray(intercooler_pressure_loss))
     T_out, st = compressor_discharge_temperature(charge, T0, p_in, p_out, eta_c)
@@ -423,7 +424,7 @@ def reconstruct_engine(
 
     >>> import math
     >>> from models.components.reciprocating import EngineGeometry
-    >>> from models.fuel import gas_fuel
+    >>> from models.properties.fuel import gas_fuel
     >>> kr_ge1 = EngineGeometry(0.21, 0.24, 0.48, 20, 12.5)
     >>> ng = gas_fuel({"CH4": 0.93, "C2H6": 0.04, "C3H8": 0.01, "N2": 0.01, "CO2": 0.01})
     >>> s, _ = simulate_engine(

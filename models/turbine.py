@@ -7,8 +7,8 @@ Equations, per kg of exhaust gas (composition frozen through the expansion)::
     eta_t = (h3 - h4) / (h3 - h4s)                                                (2)
     w_t   = h3 - h4,  W_t = m_g w_t                                               (3)
 
-Enthalpy and entropy include the real-gas departure (:func:`models.gas.residual`) at each
-state's pressure.  With the heat-balance (mixed-mean) turbine inlet temperature of a cooled
+Enthalpy and entropy include the real-gas departure (:func:`models.properties.mixtures.residual`) at
+each state's pressure.  With the heat-balance (mixed-mean) turbine inlet temperature of a cooled
 turbine, eta_t is an *equivalent uncooled* efficiency: it lumps the cooling-air mixing losses
 and reads lower than the blade-row efficiency.
 
@@ -25,7 +25,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas
+from models.properties import mixtures
 from models.status import Reason
 
 __all__ = ["TURBINE_EFFICIENCY_BAND", "TurbineState", "turbine", "turbine_exit_temperature"]
@@ -65,7 +65,7 @@ class TurbineState:
 
 
 def turbine(
-    exhaust: gas.Mixture,
+    exhaust: mixtures.Mixture,
     T3: ArrayLike,
     p3: ArrayLike,
     T4: ArrayLike,
@@ -77,7 +77,7 @@ def turbine(
 
     Parameters
     ----------
-    exhaust : models.gas.Mixture
+    exhaust : models.properties.mixtures.Mixture
         Exhaust-gas composition (e.g. :attr:`models.combustor.CombustorState.exhaust`).
     T3, p3 : array_like
         Turbine inlet temperature [K] and pressure [Pa].
@@ -137,7 +137,7 @@ def turbine(
 
 
 def turbine_exit_temperature(
-    exhaust: gas.Mixture,
+    exhaust: mixtures.Mixture,
     T3: ArrayLike,
     p3: ArrayLike,
     p4: ArrayLike,

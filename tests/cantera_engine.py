@@ -31,7 +31,7 @@ Humid air
 The water mole fraction at the compressor inlet is fixed by the ambient state: CoolProp's
 humid-air model (ASHRAE RP-1485, HAPropsSI output ``psi_w``), which includes the enhancement
 factor and refers RH to ice below 0 degC (``saturation="ice"``, the default, the same
-convention as ``models.gas.humid_air``), or - for ``saturation="water"`` below 0 degC, the
+convention as ``models.properties.mixtures.humid_air``), or - for ``saturation="water"`` below 0 degC, the
 meteorological convention of relative humidity over liquid water - ``RH * f * p_sat,w(T) / p``
 with CoolProp's IAPWS-95 water.
 
@@ -110,7 +110,7 @@ CASING_LOSS_AT: Literal["combustor", "turbine"] = "combustor"
 #: molar departure of air to every station (combustion gas included), so both.
 REAL_GAS_STATIONS: frozenset[str] = frozenset({"compressor", "turbine"})
 
-# our species names (models.species spelling) -> name in each Cantera data file
+# our species names (models.properties.species spelling) -> name in each Cantera data file
 _NASA_NAMES = {
     "N2": "N2",
     "O2": "O2",
@@ -547,7 +547,7 @@ def reconstruct_one(
 
     Same method as the vectorised reconstruction in ``models.gas_turbine``: sensible
     enthalpies relative to 25 degC with the caller's heating value ``lhv`` [J/kg] (pass the
-    ISO 6976 value of ``models.fuel`` to compare like with like).
+    ISO 6976 value of ``models.properties.fuel`` to compare like with like).
 
     Parameters
     ----------

@@ -22,8 +22,8 @@ from models.correction import (
     curve_correction,
     reference_operating_point,
 )
-from models.fuel import gas_fuel
 from models.gas_turbine import reconstruct, simulate
+from models.properties.fuel import gas_fuel
 from models.status import ModelInputError, Reason
 
 FUEL = gas_fuel({"CH4": 0.95, "C2H6": 0.03, "C3H8": 0.005, "N2": 0.01, "CO2": 0.005})

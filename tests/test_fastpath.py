@@ -24,7 +24,7 @@ import pytest
 
 from models import gas_turbine as fast
 from models.correction import CorrectionCurve, CorrectionTables
-from models.fuel import gas_fuel
+from models.properties.fuel import gas_fuel
 
 RTOL = 1e-7  # relative, every result
 TEMPERATURE_ATOL = 1e-4  # K, results in kelvin

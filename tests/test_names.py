@@ -486,8 +486,8 @@ def test_calc_md_degrees_celsius_claim_is_what_validation_does() -> None:
 
 
 def _kr_gt1(**changes: float) -> dict[str, float]:
-    from models.fuel import gas_fuel
     from models.gas_turbine import reconstruct
+    from models.properties.fuel import gas_fuel
 
     rec = json.loads((EXAMPLES / "kr-gt1-snapshot.json").read_text())
     meas = {k: np.array([v]) for k, v in rec["measurements"].items()}
@@ -521,7 +521,7 @@ def test_method_md_kestrel_ridge_figures_are_recomputed() -> None:
 
 
 def test_validity_md_fuel_preheat_figures_are_recomputed() -> None:
-    from models.fuel import gas_fuel
+    from models.properties.fuel import gas_fuel
 
     text = (DOCS / "validity.md").read_text(encoding="utf-8")
     rec = json.loads((EXAMPLES / "kr-gt1-snapshot.json").read_text())
@@ -545,7 +545,7 @@ def test_validity_md_fuel_preheat_figures_are_recomputed() -> None:
 
 
 def test_glossary_and_method_state_one_humidity_convention_below_freezing() -> None:
-    from models import gas
+    from models.properties import mixtures
 
     glossary = " ".join(GLOSSARY.read_text(encoding="utf-8").split())
     method = " ".join((DOCS / "method.md").read_text(encoding="utf-8").split())
@@ -554,9 +554,13 @@ def test_glossary_and_method_state_one_humidity_convention_below_freezing() -> N
     assert "over liquid water)" not in glossary
     # and the model does so: below 273.16 K the saturation pressure is the ice branch, which
     # is below the (extrapolated) liquid one (IAPWS: sublimation < vaporisation below 0 degC)
-    x, _ = gas.humid_air(263.15, 101325.0, 1.0)
-    p_w = float(x[gas.INDEX["H2O"]]) * 101325.0 / float(gas.enhancement_factor(263.15, 101325.0))
-    assert p_w == pytest.approx(float(gas.saturation_pressure(263.15)), rel=1e-9)
+    x, _ = mixtures.humid_air(263.15, 101325.0, 1.0)
+    p_w = (
+        float(x[mixtures.INDEX["H2O"]])
+        * 101325.0
+        / float(mixtures.enhancement_factor(263.15, 101325.0))
+    )
+    assert p_w == pytest.approx(float(mixtures.saturation_pressure(263.15)), rel=1e-9)
     assert 255.0 < p_w < 265.0  # about 260 Pa over ice at -10 degC (from memory; water: 286)
 
 
@@ -589,22 +593,33 @@ def test_developers_md_layout_names_every_module_and_nothing_else() -> None:
     text = (ROOT / "DEVELOPERS.md").read_text(encoding="utf-8")
     layout = text.split("## Layout")[1].split("```")[1]
     listed: set[str] = set()
-    top = ""
+    # folders nest by indentation: a line whose first word is "name/" opens that folder for
+    # the lines indented deeper below it ("models/" > "  properties/" > "    species.py")
+    folders: list[tuple[int, str]] = []
     for line in layout.splitlines():
         if not line.strip():
             continue
-        if not line.startswith(" "):
+        indent = len(line) - len(line.lstrip())
+        while folders and folders[-1][0] >= indent:
+            folders.pop()
+        parent = folders[-1][1] if folders else ""
+        if not indent:  # a top-level folder; the rest of its line is prose
             top = line.split()[0]
             listed.add(top.rstrip("/"))
+            folders.append((indent, top))
             continue
-        for raw in line.split():
+        for n, raw in enumerate(line.split()):
             tok = raw.strip("`(),")
             if re.fullmatch(r"[a-z_0-9]+(\.py|\.html|/)", tok):
-                listed.add(f"{top}{tok}".rstrip("/"))
+                listed.add(f"{parent}{tok}".rstrip("/"))
+                if n == 0 and tok.endswith("/"):
+                    folders.append((indent, f"{parent}{tok}"))
     for p in sorted(listed):
         assert (ROOT / p).exists(), f"DEVELOPERS.md names {p}, which does not exist"
-    modules = {f"{d}/{p.name}" for d in ("models", "daemon") for p in (ROOT / d).glob("*.py")}
-    modules -= {"models/__init__.py", "daemon/__init__.py"}
+    # every module of models (at any depth) and of daemon's top level is named
+    modules = {p.relative_to(ROOT).as_posix() for p in (ROOT / "models").rglob("*.py")}
+    modules |= {f"daemon/{p.name}" for p in (ROOT / "daemon").glob("*.py")}
+    modules = {m for m in modules if not m.endswith("__init__.py")}
     assert sorted(modules - listed) == [], "modules missing from DEVELOPERS.md's layout"
     for name in ("RESULT_VALUE_COLUMNS", "RESULT_INPUT_COLUMNS"):
         assert hasattr(schema, name) and name in text

@@ -16,7 +16,6 @@ from typing import Any
 import numpy as np
 import pytest
 
-from models import gas
 from models.components.reciprocating import (
     BSFC_G_PER_KWH,
     EngineGeometry,
@@ -24,14 +23,15 @@ from models.components.reciprocating import (
 )
 from models.correction_iso3046 import ISO3046_EXPONENTS
 from models.cycles.reciprocating import diesel_efficiency, otto_efficiency
-from models.fuel import gas_fuel, liquid_fuel
+from models.properties import mixtures
+from models.properties.fuel import gas_fuel, liquid_fuel
+from models.properties.species import INDEX, SPECIES
 from models.reciprocating_engine import (
     MEASUREMENTS_OPTIONAL,
     MEASUREMENTS_REQUIRED,
     reconstruct_engine,
     simulate_engine,
 )
-from models.species import INDEX, SPECIES
 from models.status import WARNING_REASONS, ModelInputError, Reason
 
 RPM = 2 * math.pi / 60
@@ -245,7 +245,7 @@ def test_forward_exhaust_temperature_against_cantera_energy_balance() -> None:
             sensors[k][i]
             for k in ("ambient_temperature", "ambient_pressure", "ambient_relative_humidity")
         )
-        xa, _ = gas.humid_air(T0, p0, rh)
+        xa, _ = mixtures.humid_air(T0, p0, rh)
         air = {n: float(xa[INDEX[n]]) for n in names[:5]}
         m_f, m_a = sensors["fuel_mass_flow"][i], sensors["air_mass_flow"][i]
         sol.TPX = T0, p0, air

@@ -45,7 +45,7 @@ from typing import Literal
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas, machine
+from models import machine
 from models.compressor import CompressorState, compressor
 from models.cycles.reciprocating import (
     GAMMA_AIR,
@@ -55,8 +55,9 @@ from models.cycles.reciprocating import (
     dual_cycle,
     otto_cycle,
 )
-from models.fuel import FuelProperties
-from models.species import INDEX, SPECIES
+from models.properties import mixtures
+from models.properties.fuel import FuelProperties
+from models.properties.species import INDEX, SPECIES
 from models.status import ModelInputError, Reason
 
 __all__ = [
@@ -440,18 +441,18 @@ def relative_efficiency(
 # --------------------------------------------------------------------------------------------
 # Combustion stoichiometry
 # --------------------------------------------------------------------------------------------
-def dry_air() -> gas.Mixture:
-    """Dry air of :data:`models.gas.DRY_AIR` as a :class:`models.gas.Mixture`."""
-    return gas.Mixture.from_mole_fractions(gas.DRY_AIR)
+def dry_air() -> mixtures.Mixture:
+    """Dry air of :data:`models.properties.mixtures.DRY_AIR` as a mixture."""
+    return mixtures.Mixture.from_mole_fractions(mixtures.DRY_AIR)
 
 
-_M = gas.MOLAR_MASS
+_M = mixtures.MOLAR_MASS
 _I_O2 = INDEX["O2"]
 _NOT_H2O = np.array([s != "H2O" for s in SPECIES])
 
 
 def _o2_coefficients(
-    fuel: FuelProperties, air: gas.Mixture, basis: OxygenBasis
+    fuel: FuelProperties, air: mixtures.Mixture, basis: OxygenBasis
 ) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
     """(c, a, b, A_st) of eq. (9), per kg of fuel: c mol O2 needed, a mol of stoichiometric
     air, b mol change of the products (O2 consumed counted negative), on the basis."""
@@ -476,7 +477,7 @@ def _o2_coefficients(
 def exhaust_oxygen(
     excess_air_ratio: ArrayLike,
     fuel: FuelProperties,
-    air: gas.Mixture | None = None,
+    air: mixtures.Mixture | None = None,
     basis: OxygenBasis = "dry",
 ) -> tuple[FloatArray, StatusArray]:
     """Exhaust O2 mole fraction of complete lean combustion (forward of eq. 9).
@@ -486,9 +487,9 @@ def exhaust_oxygen(
     excess_air_ratio : array_like
         lambda = m_a / (m_f A_st) [-], >= 1.
     fuel : FuelProperties
-        From :func:`models.fuel.gas_fuel` (composition) or :func:`models.fuel.liquid_fuel`
-        (C/H/S/O mass fractions).
-    air : models.gas.Mixture, optional
+        From :func:`models.properties.fuel.gas_fuel` (composition) or
+        :func:`models.properties.fuel.liquid_fuel` (C/H/S/O mass fractions).
+    air : models.properties.mixtures.Mixture, optional
         Combustion air (humid air); default :func:`dry_air`.
     basis : {"dry", "wet"}
         Dry: water removed before the analyser (extractive, cooled sample); wet: in situ.
@@ -514,7 +515,7 @@ def exhaust_oxygen(
 
     Examples
     --------
-    >>> from models.fuel import gas_fuel
+    >>> from models.properties.fuel import gas_fuel
     >>> x, _ = exhaust_oxygen([1.0, 2.0], gas_fuel({"CH4": 1.0}))
     >>> [round(float(v), 4) for v in x]
     [0.0, 0.1105]
@@ -530,7 +531,7 @@ def exhaust_oxygen(
 def excess_air_ratio_from_oxygen(
     oxygen: ArrayLike,
     fuel: FuelProperties,
-    air: gas.Mixture | None = None,
+    air: mixtures.Mixture | None = None,
     basis: OxygenBasis = "dry",
 ) -> tuple[FloatArray, StatusArray]:
     """Excess-air ratio lambda from the measured exhaust O2 (inverse of eq. 9).
@@ -541,7 +542,7 @@ def excess_air_ratio_from_oxygen(
         Exhaust O2 mole fraction [mol/mol] (0.105, not 10.5 %), 0 <= x_O2 < x_O2 of the air
         on the same basis.
     fuel : FuelProperties
-    air : models.gas.Mixture, optional
+    air : models.properties.mixtures.Mixture, optional
         Combustion air; default :func:`dry_air`.
     basis : {"dry", "wet"}
         Basis of the analyser reading.
@@ -566,7 +567,7 @@ def excess_air_ratio_from_oxygen(
 
     Examples
     --------
-    >>> from models.fuel import gas_fuel
+    >>> from models.properties.fuel import gas_fuel
     >>> lam, _ = excess_air_ratio_from_oxygen(0.1105, gas_fuel({"CH4": 1.0}))
     >>> round(float(lam), 3)
     2.0
@@ -585,7 +586,7 @@ def excess_air_ratio_from_air_flow(
     air_mass_flow: ArrayLike,
     fuel_mass_flow: ArrayLike,
     fuel: FuelProperties,
-    air: gas.Mixture | None = None,
+    air: mixtures.Mixture | None = None,
 ) -> tuple[FloatArray, StatusArray]:
     """Excess-air ratio lambda = m_a / (m_f A_st) from a measured air flow (eq. 8).
 
@@ -596,7 +597,7 @@ def excess_air_ratio_from_air_flow(
     fuel_mass_flow : array_like
         m_f [kg/s], > 0.
     fuel : FuelProperties
-    air : models.gas.Mixture, optional
+    air : models.properties.mixtures.Mixture, optional
         Composition of the metered air, whose O2 fraction sets A_st; default dry air.
 
     Returns
@@ -607,7 +608,7 @@ def excess_air_ratio_from_air_flow(
 
     Examples
     --------
-    >>> from models.fuel import gas_fuel
+    >>> from models.properties.fuel import gas_fuel
     >>> lam, _ = excess_air_ratio_from_air_flow(3.44, 0.1, gas_fuel({"CH4": 1.0}))
     >>> round(float(lam), 3)
     1.995
@@ -626,7 +627,7 @@ def excess_air_ratio_from_air_flow(
 def charge_density(
     temperature: ArrayLike,
     pressure: ArrayLike,
-    fluid: gas.Mixture | None = None,
+    fluid: mixtures.Mixture | None = None,
     *,
     real_gas: bool = True,
 ) -> tuple[FloatArray, StatusArray]:
@@ -638,12 +639,13 @@ def charge_density(
         Receiver (charge-air) temperature after the intercooler [K].
     pressure : array_like
         Receiver pressure [Pa], absolute.
-    fluid : models.gas.Mixture, optional
+    fluid : models.properties.mixtures.Mixture, optional
         Charge composition (humid air, or air and fuel gas for a premixed gas engine);
         default dry air.
     real_gas : bool
-        Include the compressibility factor Z of air (:func:`models.gas.compressibility`,
-        Lemmon et al. 2000 fit; about 1.001 at 4 bar and 320 K).
+        Include the compressibility factor Z of air
+        (:func:`models.properties.mixtures.compressibility`, Lemmon et al. 2000 fit; about 1.001 at
+        4 bar and 320 K).
 
     Returns
     -------
@@ -653,10 +655,12 @@ def charge_density(
     mix = dry_air() if fluid is None else fluid
     (T, p), status = _inputs((temperature, "pos"), (pressure, "pos"), shape=mix.shape)
     _flag(
-        status, (status == 0) & ((T < gas.T_MIN) | (T > gas.T_MAX)), Reason.TEMPERATURE_OUT_OF_RANGE
+        status,
+        (status == 0) & ((T < mixtures.T_MIN) | (T > mixtures.T_MAX)),
+        Reason.TEMPERATURE_OUT_OF_RANGE,
     )
-    _flag(status, (status == 0) & (p > gas.P_MAX_REAL), Reason.PRESSURE_OUT_OF_RANGE)
-    Z = gas.compressibility(np.where(status == 0, T, 300.0), np.where(status == 0, p, 1e5))
+    _flag(status, (status == 0) & (p > mixtures.P_MAX_REAL), Reason.PRESSURE_OUT_OF_RANGE)
+    Z = mixtures.compressibility(np.where(status == 0, T, 300.0), np.where(status == 0, p, 1e5))
     rho = p / ((Z if real_gas else 1.0) * mix.R * T)
     return _nan(rho, status), status
 
@@ -668,7 +672,7 @@ def volumetric_efficiency(
     receiver_temperature: ArrayLike,
     receiver_pressure: ArrayLike,
     *,
-    fluid: gas.Mixture | None = None,
+    fluid: mixtures.Mixture | None = None,
 ) -> tuple[FloatArray, StatusArray]:
     """Volumetric efficiency against the receiver (charge-air) density (eq. 10).
 
@@ -681,7 +685,7 @@ def volumetric_efficiency(
         Engine speed omega [rad/s], > 0.
     receiver_temperature, receiver_pressure : array_like
         Charge-air temperature [K] and pressure [Pa] after the intercooler.
-    fluid : models.gas.Mixture, optional
+    fluid : models.properties.mixtures.Mixture, optional
         Composition of the charge; default dry air.
 
     Returns
@@ -711,7 +715,7 @@ def volumetric_efficiency(
 
 
 def turbocharger_compressor(
-    fluid: gas.Mixture,
+    fluid: mixtures.Mixture,
     inlet_temperature: ArrayLike,
     inlet_pressure: ArrayLike,
     outlet_temperature: ArrayLike,
@@ -721,7 +725,7 @@ def turbocharger_compressor(
 
     Parameters
     ----------
-    fluid : models.gas.Mixture
+    fluid : models.properties.mixtures.Mixture
         Gas compressed: humid air, or the air-fuel mixture of a gas engine mixing upstream.
     inlet_temperature, inlet_pressure : array_like
         Compressor inlet [K], [Pa] (ambient, or after the inlet filter when measured).
@@ -750,7 +754,7 @@ def turbocharger_compressor(
 
 
 def exhaust_heat(
-    exhaust: gas.Mixture,
+    exhaust: mixtures.Mixture,
     exhaust_mass_flow: ArrayLike,
     temperature_in: ArrayLike,
     temperature_out: ArrayLike,
@@ -759,7 +763,7 @@ def exhaust_heat(
 
     Parameters
     ----------
-    exhaust : models.gas.Mixture
+    exhaust : models.properties.mixtures.Mixture
         Exhaust gas (e.g. :func:`models.combustor.exhaust_mixture`).
     exhaust_mass_flow : array_like
         m_g [kg/s], > 0.
@@ -929,7 +933,7 @@ def cycle_from_fuel(
     charge_mass_flow: ArrayLike,
     lower_heating_value: ArrayLike,
     peak_cylinder_pressure: ArrayLike | None = None,
-    fluid: gas.Mixture | None = None,
+    fluid: mixtures.Mixture | None = None,
     combustion_efficiency: ArrayLike = 1.0,
     gamma: ArrayLike = GAMMA_AIR,
     gas_constant: ArrayLike = R_DRY_AIR,
@@ -950,7 +954,7 @@ def cycle_from_fuel(
         As :func:`heat_input_per_charge`.
     peak_cylinder_pressure : array_like, optional
         Measured peak cylinder pressure [Pa]; needed for ``"dual"``.
-    fluid : models.gas.Mixture, optional
+    fluid : models.properties.mixtures.Mixture, optional
         None: air standard (constant ``gamma``, ``gas_constant``); a mixture: variable
         properties.
     gamma, gas_constant : array_like, optional
@@ -1000,7 +1004,7 @@ def estimate_cutoff_ratio(
     charge_mass_flow: ArrayLike,
     lower_heating_value: ArrayLike,
     peak_cylinder_pressure: ArrayLike | None = None,
-    fluid: gas.Mixture | None = None,
+    fluid: mixtures.Mixture | None = None,
     combustion_efficiency: ArrayLike = 1.0,
     gamma: ArrayLike = GAMMA_AIR,
 ) -> tuple[FloatArray, StatusArray]:
@@ -1019,7 +1023,7 @@ def estimate_cutoff_ratio(
     peak_cylinder_pressure : array_like, optional
         Measured peak cylinder pressure [Pa]: the dual cycle, with part of the heat at
         constant volume.
-    fluid : models.gas.Mixture, optional
+    fluid : models.properties.mixtures.Mixture, optional
         None: constant specific heats (``gamma``); a mixture: variable properties.
     combustion_efficiency : array_like, optional
         [-] (default 1).

@@ -23,12 +23,12 @@ Two property models
 and gas constant R; every corner in closed form, and the efficiencies reduce to the textbook
 relations (:func:`otto_efficiency`, :func:`diesel_efficiency`, :func:`dual_efficiency`).
 
-*Temperature-dependent properties* (``fluid=`` a :class:`models.gas.Mixture`): the same ideal
-gas of frozen composition with NASA-polynomial h(T) and s°(T).  Isentropes by volume follow
-``s°(T_b) - R ln T_b = s°(T_a) - R ln T_a + R ln(v_a / v_b)`` (Newton, vectorised, bounded);
+*Temperature-dependent properties* (``fluid=`` a :class:`models.properties.mixtures.Mixture`): the
+same ideal gas of frozen composition with NASA-polynomial h(T) and s°(T).  Isentropes by volume
+follow ``s°(T_b) - R ln T_b = s°(T_a) - R ln T_a + R ln(v_a / v_b)`` (Newton, vectorised, bounded);
 heat at constant volume raises u = h - R T, at constant pressure h.  No real-gas departure:
-cylinder pressures exceed the 6 MPa of :func:`models.gas.residual`, and the ideal cycle is an
-ideal-gas construct by definition.
+cylinder pressures exceed the 6 MPa of :func:`models.properties.mixtures.residual`, and the ideal
+cycle is an ideal-gas construct by definition.
 
 How a cycle is specified
 ------------------------
@@ -54,7 +54,7 @@ References
 .. [2] Y. A. Çengel, M. A. Boles, *Thermodynamics: An Engineering Approach*, McGraw-Hill,
    ch. 9 (Otto, Diesel and dual cycles; air-standard assumptions).
 .. [3] B. J. McBride, S. Gordon, M. A. Reno, NASA TM-4513, 1993 (property data of
-   :mod:`models.gas`).
+   :mod:`models.properties.mixtures`).
 """
 
 from __future__ import annotations
@@ -65,7 +65,7 @@ from typing import Literal, Protocol
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas
+from models.properties import mixtures
 from models.status import ModelInputError, Reason
 
 __all__ = [
@@ -88,8 +88,8 @@ StatusArray = NDArray[np.uint32]
 CORNERS: tuple[str, ...] = ("1", "2", "3a", "3b", "4")
 #: Ratio of specific heats of the cold-air standard [-].
 GAMMA_AIR: float = 1.4
-#: Specific gas constant of :data:`models.gas.DRY_AIR` [J/(kg K)] (287.04).
-R_DRY_AIR: float = float(gas.R_UNIVERSAL / (gas.DRY_AIR @ gas.MOLAR_MASS))
+#: Specific gas constant of :data:`models.properties.mixtures.DRY_AIR` [J/(kg K)] (287.04).
+R_DRY_AIR: float = float(mixtures.R_UNIVERSAL / (mixtures.DRY_AIR @ mixtures.MOLAR_MASS))
 
 _MAX_ITER = 25
 _T_TOL = 1e-9  # K, Newton step at convergence
@@ -317,9 +317,9 @@ class _ConstantCp:
 
 
 class _Variable:
-    """Ideal gas of frozen composition with NASA-polynomial properties (models.gas)."""
+    """Ideal gas of frozen composition with NASA-polynomial properties (a mixture)."""
 
-    def __init__(self, mix: gas.Mixture) -> None:
+    def __init__(self, mix: mixtures.Mixture) -> None:
         self.mix = mix
         self.R = mix.R
 
@@ -337,7 +337,7 @@ class _Variable:
         status: StatusArray,
     ) -> FloatArray:
         """Solve u(T) = target or s°(T) - R ln T = target for T (bounded Newton)."""
-        T = np.clip(np.array(T, dtype=np.float64), gas.T_MIN, gas.T_MAX)
+        T = np.clip(np.array(T, dtype=np.float64), mixtures.T_MIN, mixtures.T_MAX)
         done = np.zeros(T.shape, dtype=bool)
         pinned = np.zeros(T.shape, dtype=bool)
         for _ in range(_MAX_ITER):
@@ -348,7 +348,7 @@ class _Variable:
             else:
                 res = self.mix.s0(T) - self.R * np.log(T) - target
                 dT = res * T / cv
-            T_new = np.clip(T - dT, gas.T_MIN, gas.T_MAX)
+            T_new = np.clip(T - dT, mixtures.T_MIN, mixtures.T_MAX)
             pinned = (T_new != T - dT) & (np.abs(T_new - T) < _T_TOL)
             done = np.abs(T_new - T) < _T_TOL * np.maximum(1.0, T)
             T = T_new
@@ -377,7 +377,7 @@ class _Variable:
 def _check_range(status: StatusArray, *Ts: FloatArray) -> None:
     for T in Ts:
         with np.errstate(invalid="ignore"):
-            bad = ~((T >= gas.T_MIN) & (T <= gas.T_MAX))
+            bad = ~((T >= mixtures.T_MIN) & (T <= mixtures.T_MAX))
         _flag(status, bad & (status == 0), Reason.TEMPERATURE_OUT_OF_RANGE)
 
 
@@ -451,14 +451,16 @@ class ReciprocatingCycle:
 
 
 def _props(
-    fluid: gas.Mixture | None, gamma: ArrayLike, gas_constant: ArrayLike
+    fluid: mixtures.Mixture | None, gamma: ArrayLike, gas_constant: ArrayLike
 ) -> tuple[_Props, tuple[int, ...], FloatArray, FloatArray]:
     if fluid is None:
         g = _f(gamma)
         R = _f(gas_constant)
         return _ConstantCp(g, R), np.broadcast(g, R).shape, g, R
-    if not isinstance(fluid, gas.Mixture):
-        raise ModelInputError("fluid", type(fluid).__name__, "a models.gas.Mixture or None")
+    if not isinstance(fluid, mixtures.Mixture):
+        raise ModelInputError(
+            "fluid", type(fluid).__name__, "a models.properties.mixtures.Mixture or None"
+        )
     return _Variable(fluid), fluid.shape, np.asarray(2.0), fluid.R
 
 
@@ -466,7 +468,7 @@ def _props(
 class _Fluid:
     """The property model asked for: a mixture, or constant gamma and R."""
 
-    fluid: gas.Mixture | None
+    fluid: mixtures.Mixture | None
     gamma: ArrayLike
     gas_constant: ArrayLike
 
@@ -599,7 +601,7 @@ def otto_cycle(
     *,
     cycle_heat_input: ArrayLike | None = None,
     peak_pressure_ratio: ArrayLike | None = None,
-    fluid: gas.Mixture | None = None,
+    fluid: mixtures.Mixture | None = None,
     gamma: ArrayLike = GAMMA_AIR,
     gas_constant: ArrayLike = R_DRY_AIR,
 ) -> ReciprocatingCycle:
@@ -617,7 +619,7 @@ def otto_cycle(
         Heat added per unit mass of charge [J/kg], >= 0.  Give this or ``peak_pressure_ratio``.
     peak_pressure_ratio : array_like, optional
         alpha = p3/p2 [-], >= 1.
-    fluid : models.gas.Mixture, optional
+    fluid : models.properties.mixtures.Mixture, optional
         None (default): constant specific heats from ``gamma`` and ``gas_constant`` (the
         air-standard cycle).  A mixture: its temperature-dependent properties.
     gamma : array_like, optional
@@ -678,7 +680,7 @@ def diesel_cycle(
     *,
     cycle_heat_input: ArrayLike | None = None,
     cutoff_ratio: ArrayLike | None = None,
-    fluid: gas.Mixture | None = None,
+    fluid: mixtures.Mixture | None = None,
     gamma: ArrayLike = GAMMA_AIR,
     gas_constant: ArrayLike = R_DRY_AIR,
 ) -> ReciprocatingCycle:
@@ -696,7 +698,7 @@ def diesel_cycle(
         Heat added per unit mass of charge [J/kg], >= 0.  Give this or ``cutoff_ratio``.
     cutoff_ratio : array_like, optional
         rc = v3/v2 [-], >= 1.
-    fluid : models.gas.Mixture, optional
+    fluid : models.properties.mixtures.Mixture, optional
         None: constant specific heats (air standard); a mixture: its variable properties.
     gamma : array_like, optional
         cp/cv for constant specific heats [-] (default 1.4).
@@ -752,7 +754,7 @@ def dual_cycle(
     peak_cylinder_pressure: ArrayLike | None = None,
     peak_pressure_ratio: ArrayLike | None = None,
     cutoff_ratio: ArrayLike | None = None,
-    fluid: gas.Mixture | None = None,
+    fluid: mixtures.Mixture | None = None,
     gamma: ArrayLike = GAMMA_AIR,
     gas_constant: ArrayLike = R_DRY_AIR,
 ) -> ReciprocatingCycle:
@@ -775,7 +777,7 @@ def dual_cycle(
         alpha = p3a/p2 [-], >= 1; give it with ``cutoff_ratio`` (instead of the heat form).
     cutoff_ratio : array_like, optional
         rc = v3b/v3a [-], >= 1.
-    fluid : models.gas.Mixture, optional
+    fluid : models.properties.mixtures.Mixture, optional
         None: constant specific heats (air standard); a mixture: its variable properties.
     gamma : array_like, optional
         cp/cv for constant specific heats [-] (default 1.4).

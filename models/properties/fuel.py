@@ -1,9 +1,9 @@
 """Fuel chemistry: heating values, Wobbe index, stoichiometric air and combustion products.
 
-Gas fuels follow ISO 6976:2016 (component table in :mod:`models.iso6976_data`); liquid fuels are
-described by their lower heating value and C/H/S (optionally O) mass fractions.  Everything is
-SI: J/mol, J/kg, J/m^3, kg/mol, K, Pa.  All functions are vectorised: each composition value may
-be an array over a batch, and every result has that batch shape.
+Gas fuels follow ISO 6976:2016 (component table in :mod:`models.properties.iso6976_data`); liquid
+fuels are described by their lower heating value and C/H/S (optionally O) mass fractions.
+Everything is SI: J/mol, J/kg, J/m^3, kg/mol, K, Pa.  All functions are vectorised: each composition
+value may be an array over a batch, and every result has that batch shape.
 
 Reference conditions (state them with every reported number):
 
@@ -34,8 +34,9 @@ from typing import Literal
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import iso6976_data as iso
-from models.species import INDEX, N_SPECIES, SPECIES
+from models.properties import iso6976_data as iso
+from models.properties import mixtures
+from models.properties.species import INDEX, N_SPECIES, SPECIES
 from models.status import ModelInputError, Reason
 
 __all__ = [
@@ -56,7 +57,7 @@ FloatArray = NDArray[np.float64]
 StatusArray = NDArray[np.uint32]
 OnInvalid = Literal["raise", "nan"]
 
-#: Components accepted by :func:`gas_fuel` (names as in :data:`models.species.SPECIES`).
+#: Components accepted by :func:`gas_fuel` (names as in :data:`models.properties.species.SPECIES`).
 GAS_COMPONENTS: tuple[str, ...] = (
     "CH4",
     "C2H6",
@@ -92,8 +93,8 @@ _A = iso.ATOMIC_MASS
 _M_C, _M_H, _M_N, _M_O, _M_S = (_A["C"] * 1e-3, _A["H"] * 1e-3, _A["N"] * 1e-3,
                                 _A["O"] * 1e-3, _A["S"] * 1e-3)  # fmt: skip
 
-#: Molar masses of :data:`models.species.SPECIES` [kg/mol] on ISO 6976:2016's atomic masses, so
-#: that element balances (and ``product_delta`` summing to 1) hold to rounding.
+#: Molar masses of :data:`models.properties.species.SPECIES` [kg/mol] on ISO 6976:2016's atomic
+#: masses, so that element balances (and ``product_delta`` summing to 1) hold to rounding.
 SPECIES_MOLAR_MASS: FloatArray = iso.molar_mass(SPECIES)
 
 #: Standard dry air [mole fraction] over N2, O2, Ar, CO2: CIPM-2007 composition (Picard et al.,
@@ -131,8 +132,8 @@ class FuelProperties:
     stoichiometric_air : ndarray [kg dry air / kg fuel]  for :data:`STANDARD_DRY_AIR`
     carbon_mass_fraction, hydrogen_mass_fraction, sulfur_mass_fraction : ndarray [-]
     product_delta : ndarray (..., N_SPECIES) [kg / kg fuel]  change of each species of
-        :data:`models.species.SPECIES` when 1 kg of fuel burns completely in air: products and
-        inert fuel components +, O2 consumed −.  Sums to 1 over species.
+        :data:`models.properties.species.SPECIES` when 1 kg of fuel burns completely in air:
+        products and inert fuel components +, O2 consumed −.  Sums to 1 over species.
     composition : ndarray (..., N_SPECIES) or None  mole fractions (gas fuel only)
     liquid_cp : ndarray [J/(kg K)]  (NaN for gas)
     combustion_temperature, metering_temperature, wobbe_combustion_temperature [K]
@@ -183,22 +184,20 @@ class FuelProperties:
 
         Notes
         -----
-        Gas: ideal-gas mixture of the fuel's species, ``models.gas.Mixture`` (NASA polynomial
-        data), h(T) − h(298.15 K).  Liquid: ``liquid_cp · (T − 298.15 K)``.
+        Gas: ideal-gas mixture of the fuel's species, ``models.properties.mixtures.Mixture`` (NASA
+        polynomial data), h(T) − h(298.15 K).  Liquid: ``liquid_cp · (T − 298.15 K)``.
         """
         T_arr = np.asarray(T, dtype=np.float64)
         if self.kind == "liquid" or self.composition is None:
             return np.asarray(self.liquid_cp * (T_arr - REFERENCE_TEMPERATURE), dtype=np.float64)
-        from models import gas  # deferred: models.gas is optional for liquid-only use
-
         x = self.composition
         y = x * SPECIES_MOLAR_MASS
         y = y / np.sum(y, axis=-1, keepdims=True)
         if y.ndim == 1:
             # a single fuel: evaluate as a batch of one, then drop that axis again
-            out = np.asarray(gas.Mixture.from_mass_fractions(y[None, :]).h(T_arr[..., None]))
+            out = np.asarray(mixtures.Mixture.from_mass_fractions(y[None, :]).h(T_arr[..., None]))
             return np.asarray(out[..., 0], dtype=np.float64)
-        return np.asarray(gas.Mixture.from_mass_fractions(y).h(T_arr), dtype=np.float64)
+        return np.asarray(mixtures.Mixture.from_mass_fractions(y).h(T_arr), dtype=np.float64)
 
 
 def stoichiometric_air_ratio(

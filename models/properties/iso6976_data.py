@@ -12,8 +12,8 @@ published digits) and against the 25 °C gross values of Table A.4 quoted in the
 physics notes.
 
 Only a subset of the standard's 60 components is typed: the fuel species of
-:mod:`models.species` plus a few further hydrocarbons (neopentane, n-heptane, n-octane,
-ethylene, propylene) and SO2, which :func:`models.fuel.iso6976` accepts.
+:mod:`models.properties.species` plus a few further hydrocarbons (neopentane, n-heptane, n-octane,
+ethylene, propylene) and SO2, which :func:`models.properties.fuel.iso6976` accepts.
 """
 
 from __future__ import annotations
@@ -161,7 +161,7 @@ _TABLE: dict[str, Component] = {
 }
 # fmt: on
 
-#: The typed components, keyed by brayscope species name (see :mod:`models.species`).
+#: The typed components, keyed by brayscope species name (see :mod:`models.properties.species`).
 COMPONENTS: MappingProxyType[str, Component] = MappingProxyType(_TABLE)
 
 _TOL_C = 1e-6

@@ -2,8 +2,8 @@
 
 All quantities are SI: T [K], p [Pa] (absolute), h [J/kg], cp and s [J/(kg K)], molar mass
 [kg/mol], compositions as mole (``x``) or mass (``y``) fractions over
-:data:`models.species.SPECIES` on the last axis.  Every function is vectorised and broadcasts
-over a batch shape ``(...)``.
+:data:`models.properties.species.SPECIES` on the last axis.  Every function is vectorised and
+broadcasts over a batch shape ``(...)``.
 
 Exceptions and status
 ---------------------
@@ -47,8 +47,8 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import thermo_data as _td
-from models.species import INDEX, N_SPECIES, SPECIES
+from models.properties import thermo_data as _td
+from models.properties.species import INDEX, N_SPECIES, SPECIES
 from models.status import ModelInputError, Reason
 
 __all__ = [
