@@ -33,13 +33,13 @@ Method (``docs/method.md`` has the full derivation and references)
    ``W_t - W_c = P_shaft`` holds exactly when the air flow comes from the heat balance.
 6. Heat rate ``HR = 3600 m_f LHV / P_gen`` [kJ/kWh with LHV in kJ/kg]; efficiency
    ``P_gen / (m_f LHV)``.
-7. Comparison cycles (:mod:`models.ideal`) and corrections to reference ambient
+7. Comparison cycles (:mod:`models.cycles.brayton`) and corrections to reference ambient
    (:mod:`models.correction`).
 
 Speed: the reconstruction runs in chunks that stay in cache, with the mixture coefficient
 tables of each chunk built once (dry air + water + burnt fuel as three basis fluids) and
-Newton solves that stop when the whole chunk has converged.  :mod:`models.compressor`,
-:mod:`models.combustor` and :mod:`models.turbine` hold the same equations on
+Newton solves that stop when the whole chunk has converged.  :mod:`models.components.compressor`,
+:mod:`models.components.combustor` and :mod:`models.components.turbine` hold the same equations on
 :class:`models.properties.mixtures.Mixture` objects, one component at a time; the tests check the
 two agree.
 
@@ -65,7 +65,8 @@ from typing import Any, Literal
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models.compressor import COMPRESSOR_EFFICIENCY_BAND
+from models.components.compressor import COMPRESSOR_EFFICIENCY_BAND
+from models.components.turbine import TURBINE_EFFICIENCY_BAND
 from models.correction import (
     REFERENCE_PRESSURE,
     REFERENCE_RELATIVE_HUMIDITY,
@@ -79,7 +80,6 @@ from models.properties import thermo_data as _td
 from models.properties.fuel import FuelProperties
 from models.properties.species import INDEX, N_SPECIES
 from models.status import ModelInputError, Reason
-from models.turbine import TURBINE_EFFICIENCY_BAND
 from models.unit_types import ComputeOutput, FieldSpec
 
 __all__ = [

@@ -38,10 +38,10 @@ from typing import Literal
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import machine
-from models.combustor import exhaust_mixture, stoichiometric_fuel_air_ratio
+from models.components import generator
 from models.components import reciprocating as rc
-from models.compressor import compressor_discharge_temperature
+from models.components.combustor import exhaust_mixture, stoichiometric_fuel_air_ratio
+from models.components.compressor import compressor_discharge_temperature
 from models.correction_iso3046 import (
     STANDARD_REFERENCE,
     Iso3046Exponents,
@@ -216,8 +216,8 @@ def simulate_engine(
     m_f = P_b / (eta_b LHV), P_b = P_gen / eta_gen + P_mech; m_a = lambda A_st m_f (humid
     air); receiver density m_ch / (eta_v V_d n_cyc) and pressure p = rho Z R T; compressor
     outlet p_rec / (1 - dp_ic), outlet temperature from eta_c
-    (:func:`models.compressor.compressor_discharge_temperature`); exhaust temperature from
-    eq. (1) of the module; O2 from :func:`models.components.reciprocating.exhaust_oxygen`.
+    (:func:`models.components.compressor.compressor_discharge_temperature`); exhaust temperature
+    from eq. (1) of the module; O2 from :func:`models.components.reciprocating.exhaust_oxygen`.
     """
     T0, p0, rh, Pg, w, eta_b, lam, eta_v, Tr, eta_c = (
         np.asarray(v, dtype=np.float64)
@@ -243,7 +243,7 @@ def simulate_engine(
     lhv = np.asarray(fuel.lhv, dtype=np.float64)
     air, status = _air(T0, p0, rh)
     status = np.array(np.broadcast_to(status, shape))
-    Pb, st = machine.shaft_power(Pg, generator_efficiency, mechanical_loss)
+    Pb, st = generator.shaft_power(Pg, generator_efficiency, mechanical_loss)
     status |= st
     with np.errstate(invalid="ignore"):
         _flag(status, ~((eta_b > 0) & (eta_b < 1)), Reason.EFFICIENCY_OUT_OF_RANGE)

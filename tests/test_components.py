@@ -11,14 +11,14 @@ import math
 import numpy as np
 import pytest
 
-from models.combustor import combustor, exhaust_mixture, stoichiometric_fuel_air_ratio
-from models.compressor import compressor, compressor_discharge_temperature
-from models.ideal import air_standard_brayton_efficiency, brayton_cycle, carnot_efficiency
-from models.machine import generator_power, shaft_power
+from models.components.combustor import combustor, exhaust_mixture, stoichiometric_fuel_air_ratio
+from models.components.compressor import compressor, compressor_discharge_temperature
+from models.components.generator import generator_power, shaft_power
+from models.components.turbine import turbine, turbine_exit_temperature
+from models.cycles.brayton import air_standard_brayton_efficiency, brayton_cycle, carnot_efficiency
 from models.properties import mixtures
 from models.properties.fuel import gas_fuel
 from models.status import Reason
-from models.turbine import turbine, turbine_exit_temperature
 
 DRY = mixtures.Mixture.from_mole_fractions(mixtures.DRY_AIR)
 METHANE = gas_fuel({"CH4": 1.0})

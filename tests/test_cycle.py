@@ -14,14 +14,14 @@ from typing import Any
 import numpy as np
 import pytest
 
-from models.combustor import combustor, exhaust_mixture
-from models.compressor import compressor
+from models.components.combustor import combustor, exhaust_mixture
+from models.components.compressor import compressor
+from models.components.turbine import turbine
+from models.cycles.brayton import brayton_cycle
 from models.gas_turbine import GAS_TURBINE, reconstruct, simulate
-from models.ideal import brayton_cycle
 from models.properties import mixtures
 from models.properties.fuel import gas_fuel, liquid_fuel
 from models.status import WARNING_REASONS, Reason
-from models.turbine import turbine
 from models.unit_types import UnitType, builtin_unit_types
 
 FUEL = gas_fuel(

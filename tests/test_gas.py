@@ -461,7 +461,9 @@ def test_out_of_range_gives_nan_and_reason() -> None:
 def test_not_converged_flag(monkeypatch: pytest.MonkeyPatch) -> None:
     air = Mixture.from_mole_fractions(DRY_AIR)
     h = air.h(np.array([250.0, 900.0]))
-    monkeypatch.setattr(mixtures, "MAX_ITER", 1)  # one Newton step from 1500 K away cannot reach 1e-6 K
+    monkeypatch.setattr(
+        mixtures, "MAX_ITER", 1
+    )  # one Newton step from 1500 K away cannot reach 1e-6 K
     T, st = air.T_from_h(h, T_guess=np.array([1750.0, 2400.0]))
     assert np.all(st == Reason.NOT_CONVERGED) and np.all(np.isnan(T))
     monkeypatch.setattr(mixtures, "MAX_ITER", 8)

@@ -17,8 +17,8 @@ import math
 import numpy as np
 import pytest
 
-from models.combustor import exhaust_mixture
 from models.components import reciprocating as rc
+from models.components.combustor import exhaust_mixture
 from models.components.reciprocating import (
     BSFC_G_PER_KWH,
     HEAT_RATE_KJ_PER_KWH,

@@ -45,8 +45,8 @@ from typing import Literal
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import machine
-from models.compressor import CompressorState, compressor
+from models.components import generator
+from models.components.compressor import CompressorState, compressor
 from models.cycles.reciprocating import (
     GAMMA_AIR,
     R_DRY_AIR,
@@ -349,7 +349,7 @@ def brake_performance(
 
     Notes
     -----
-    Equations (5)-(7) of the module: P_b from :func:`models.machine.shaft_power`;
+    Equations (5)-(7) of the module: P_b from :func:`models.components.generator.shaft_power`;
     eta_b = P_b / (m_f LHV); HR_b = 1 / eta_b; bsfc = m_f / P_b;
     bmep = P_b n_R / (V_d n) with n = omega / (2 pi).  Heat rate and efficiency are on the LHV
     basis (the trade's default for engines, ISO 3046-1 [2]_).
@@ -379,7 +379,7 @@ def brake_performance(
         (engine_speed, "pos"),
         (lower_heating_value, "pos"),
     )
-    Pb, st = machine.shaft_power(Pg, generator_efficiency, mechanical_loss)
+    Pb, st = generator.shaft_power(Pg, generator_efficiency, mechanical_loss)
     status = np.asarray(status | st, dtype=np.uint32)
     Pb = np.where(np.isnan(Pb), 1.0, Pb)
     eta = Pb / (mf * lhv)
@@ -734,14 +734,14 @@ def turbocharger_compressor(
 
     Returns
     -------
-    models.compressor.CompressorState
+    models.components.compressor.CompressorState
         ``pressure_ratio`` and ``isentropic_efficiency`` with the real-gas departure, as for
         the gas-turbine compressor; the ``EFFICIENCY_IMPLAUSIBLE`` warning uses
         :data:`TURBOCHARGER_EFFICIENCY_BAND`.
 
     Notes
     -----
-    :func:`models.compressor.compressor`: eta_c = (h2s - h1) / (h2 - h1).  With one
+    :func:`models.components.compressor.compressor`: eta_c = (h2s - h1) / (h2 - h1).  With one
     compressor stage per engine bank, pass each bank's readings separately.
     """
     st = compressor(fluid, inlet_temperature, inlet_pressure, outlet_temperature, outlet_pressure)
@@ -764,7 +764,7 @@ def exhaust_heat(
     Parameters
     ----------
     exhaust : models.properties.mixtures.Mixture
-        Exhaust gas (e.g. :func:`models.combustor.exhaust_mixture`).
+        Exhaust gas (e.g. :func:`models.components.combustor.exhaust_mixture`).
     exhaust_mass_flow : array_like
         m_g [kg/s], > 0.
     temperature_in, temperature_out : array_like

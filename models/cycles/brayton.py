@@ -28,7 +28,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models.combustor import exhaust_mixture
+from models.components.combustor import exhaust_mixture
 from models.properties import mixtures
 from models.properties.fuel import FuelProperties
 from models.status import Reason

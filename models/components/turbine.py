@@ -78,7 +78,7 @@ def turbine(
     Parameters
     ----------
     exhaust : models.properties.mixtures.Mixture
-        Exhaust-gas composition (e.g. :attr:`models.combustor.CombustorState.exhaust`).
+        Exhaust-gas composition (e.g. :attr:`models.components.combustor.CombustorState.exhaust`).
     T3, p3 : array_like
         Turbine inlet temperature [K] and pressure [Pa].
     T4, p4 : array_like
