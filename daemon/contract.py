@@ -55,7 +55,7 @@ from pydantic import (
 )
 from pydantic_core import PydanticCustomError
 
-from models.correction import CorrectionCurve, CorrectionTables
+from models.correction.gas_turbine import CorrectionCurve, CorrectionTables
 from models.properties.fuel import GAS_COMPONENTS
 from models.unit_types import FieldSpec, UnitType
 
@@ -368,14 +368,14 @@ FuelSpec = Annotated[
 
 
 # --------------------------------------------------------------------------------------------
-# Correction tables (the shape of models.correction.CorrectionTables)
+# Correction tables (the shape of models.correction.gas_turbine.CorrectionTables)
 # --------------------------------------------------------------------------------------------
 
 
 class CorrectionCurveSpec(BaseModel):
     """One correction curve: ``factor`` [1] versus ``x`` (SI: K, Pa or RH fraction), at least
     two points, ``x`` strictly increasing, factors > 0 (checked by
-    :class:`models.correction.CorrectionCurve`)."""
+    :class:`models.correction.gas_turbine.CorrectionCurve`)."""
 
     model_config = _STRICT
 
@@ -395,8 +395,9 @@ CorrectionsSpec: type[BaseModel] = create_model(
 
 
 def correction_tables(spec: BaseModel) -> CorrectionTables:
-    """Build :class:`models.correction.CorrectionTables` from a validated ``CorrectionsSpec``
-    (raises :class:`models.status.ModelInputError` naming ``corrections.<curve>.x|factor``)."""
+    """Build :class:`models.correction.gas_turbine.CorrectionTables` from a validated
+    ``CorrectionsSpec`` (raises :class:`models.status.ModelInputError` naming
+    ``corrections.<curve>.x|factor``)."""
     curves = {}
     for name in CORRECTION_CURVES:
         c = getattr(spec, name)

@@ -34,7 +34,7 @@ Method (``docs/method.md`` has the full derivation and references)
 6. Heat rate ``HR = 3600 m_f LHV / P_gen`` [kJ/kWh with LHV in kJ/kg]; efficiency
    ``P_gen / (m_f LHV)``.
 7. Comparison cycles (:mod:`models.cycles.brayton`) and corrections to reference ambient
-   (:mod:`models.correction`).
+   (:mod:`models.correction.gas_turbine`).
 
 Speed: the reconstruction runs in chunks that stay in cache, with the mixture coefficient
 tables of each chunk built once (dry air + water + burnt fuel as three basis fluids) and
@@ -67,7 +67,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from models.components.compressor import COMPRESSOR_EFFICIENCY_BAND
 from models.components.turbine import TURBINE_EFFICIENCY_BAND
-from models.correction import (
+from models.correction.gas_turbine import (
     REFERENCE_PRESSURE,
     REFERENCE_RELATIVE_HUMIDITY,
     REFERENCE_TEMPERATURE,
@@ -1497,7 +1497,7 @@ class GasTurbineType:
     """The single-shaft gas turbine unit type (implements :class:`models.unit_types.UnitType`).
 
     ``fuel`` of :meth:`compute` is a :class:`models.properties.fuel.FuelProperties`; ``corrections``
-    an optional :class:`models.correction.CorrectionTables`.
+    an optional :class:`models.correction.gas_turbine.CorrectionTables`.
     """
 
     name: str = "gas_turbine"
@@ -1538,7 +1538,9 @@ class GasTurbineType:
             )
         if corrections is not None and not isinstance(corrections, CorrectionTables):
             raise ModelInputError(
-                "corrections", type(corrections).__name__, "models.correction.CorrectionTables"
+                "corrections",
+                type(corrections).__name__,
+                "models.correction.gas_turbine.CorrectionTables",
             )
         missing = [f.name for f in self.measurements if f.required and f.name not in measurements]
         if missing:

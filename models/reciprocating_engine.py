@@ -42,7 +42,7 @@ from models.components import generator
 from models.components import reciprocating as rc
 from models.components.combustor import exhaust_mixture, stoichiometric_fuel_air_ratio
 from models.components.compressor import compressor_discharge_temperature
-from models.correction_iso3046 import (
+from models.correction.iso3046 import (
     STANDARD_REFERENCE,
     Iso3046Exponents,
     iso3046_correction,

@@ -38,7 +38,7 @@ from daemon.contract import (
     parse_document,
     validate_record,
 )
-from models.correction import CorrectionTables
+from models.correction.gas_turbine import CorrectionTables
 from models.status import ModelInputError
 from models.unit_types import builtin_unit_types
 

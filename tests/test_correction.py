@@ -13,7 +13,7 @@ from typing import Any
 import numpy as np
 import pytest
 
-from models.correction import (
+from models.correction.gas_turbine import (
     REFERENCE_PRESSURE,
     REFERENCE_RELATIVE_HUMIDITY,
     REFERENCE_TEMPERATURE,

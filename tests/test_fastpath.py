@@ -23,7 +23,7 @@ import numpy as np
 import pytest
 
 from models import gas_turbine as fast
-from models.correction import CorrectionCurve, CorrectionTables
+from models.correction.gas_turbine import CorrectionCurve, CorrectionTables
 from models.properties.fuel import gas_fuel
 
 RTOL = 1e-7  # relative, every result

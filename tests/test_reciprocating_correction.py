@@ -1,4 +1,4 @@
-"""ISO 3046-1 correction of engine power and fuel consumption (models.correction_iso3046).
+"""ISO 3046-1 correction of engine power and fuel consumption (models.correction.iso3046).
 
 Check values: the ISO 3046-1:2002 standard reference conditions (clause 5; clause number from
 memory), and the standard's worked examples of the power adjustment (a naturally aspirated
@@ -17,8 +17,8 @@ import doctest
 import numpy as np
 import pytest
 
-from models import correction_iso3046 as iso
-from models.correction_iso3046 import (
+from models.correction import iso3046 as iso
+from models.correction.iso3046 import (
     ISO3046_EXPONENTS,
     STANDARD_REFERENCE,
     Iso3046Exponents,

@@ -21,7 +21,7 @@ from models.components.reciprocating import (
     EngineGeometry,
     estimate_cutoff_ratio,
 )
-from models.correction_iso3046 import ISO3046_EXPONENTS
+from models.correction.iso3046 import ISO3046_EXPONENTS
 from models.cycles.reciprocating import diesel_efficiency, otto_efficiency
 from models.properties import mixtures
 from models.properties.fuel import gas_fuel, liquid_fuel
