@@ -28,7 +28,7 @@ import numpy as np
 
 from daemon.types import Snapshot
 from models.status import WARNING_REASONS, ModelInputError, Reason, reason_names
-from models.unit_types import UnitType
+from models.units.base import UnitType
 
 __all__ = [
     "INPUT_REASONS",

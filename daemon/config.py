@@ -21,7 +21,7 @@ Exception tree::
                                       ``issues`` lists every :class:`ConfigIssue` found
 
 Measurement names, their SI units and their physical limits are not listed here: they come from
-the unit type (:func:`models.unit_types.builtin_unit_types`), so the plant file, the models and
+the unit type (:func:`models.units.registry.builtin_unit_types`), so the plant file, the models and
 the database can never disagree.
 """
 
@@ -44,7 +44,7 @@ from pydantic_settings import BaseSettings, SettingsConfigDict
 
 from daemon.uom import Converter, UomError, compile_converter, get_registry, parse_uom
 from daemon.urls import url_secrets, urls_in
-from models.unit_types import FieldSpec, UnitType
+from models.units.base import FieldSpec, UnitType
 
 __all__ = [
     "BrokerConfig",
@@ -549,7 +549,7 @@ def available_unit_types() -> dict[str, UnitType]:
     """Unit types known to this installation: ``models``' built-ins plus the
     ``brayscope.unit_types`` entry points (a plug-in that fails to load is skipped and named
     in the error of any unit that uses it)."""
-    from models.unit_types import builtin_unit_types
+    from models.units.registry import builtin_unit_types
 
     types: dict[str, UnitType] = dict(builtin_unit_types())
     for ep in importlib.metadata.entry_points(group="brayscope.unit_types"):

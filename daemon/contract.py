@@ -15,7 +15,7 @@ A record is one snapshot of one unit::
     }
 
 The measurement and parameter names, units, ranges and defaults are not listed here: they are
-taken from the unit type (:class:`models.unit_types.UnitType`), so the contract and the model can
+taken from the unit type (:class:`models.units.base.UnitType`), so the contract and the model can
 never disagree.  :func:`contract_for` builds the pydantic models for one unit type.
 
 What is rejected (each with the record and the field path in the message):
@@ -57,7 +57,7 @@ from pydantic_core import PydanticCustomError
 
 from models.correction.gas_turbine import CorrectionCurve, CorrectionTables
 from models.properties.fuel import GAS_COMPONENTS
-from models.unit_types import FieldSpec, UnitType
+from models.units.base import FieldSpec, UnitType
 
 __all__ = [
     "CORRECTION_CURVES",
@@ -660,7 +660,8 @@ def validate_record(
     value : object
         The parsed JSON value (NaN/Infinity as :class:`NonFinite`).
     unit_types : Mapping[str, UnitType]
-        Known unit types by name (injected; usually :func:`models.unit_types.builtin_unit_types`).
+        Known unit types by name (injected; usually
+        :func:`models.units.registry.builtin_unit_types`).
     default_unit : str
         Unit type of a record without a ``"unit_type"`` key.
 

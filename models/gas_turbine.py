@@ -80,7 +80,7 @@ from models.properties import thermo_data as _td
 from models.properties.fuel import FuelProperties
 from models.properties.species import INDEX, N_SPECIES
 from models.status import ModelInputError, Reason
-from models.unit_types import ComputeOutput, FieldSpec
+from models.units.base import ComputeOutput, FieldSpec
 
 __all__ = [
     "COMPRESSOR_EFFICIENCY_BAND",
@@ -1494,7 +1494,7 @@ _RESULT_UNITS: Mapping[str, tuple[str, str]] = {
 
 @dataclass
 class GasTurbineType:
-    """The single-shaft gas turbine unit type (implements :class:`models.unit_types.UnitType`).
+    """The single-shaft gas turbine unit type (implements :class:`models.units.base.UnitType`).
 
     ``fuel`` of :meth:`compute` is a :class:`models.properties.fuel.FuelProperties`; ``corrections``
     an optional :class:`models.correction.gas_turbine.CorrectionTables`.
@@ -1551,5 +1551,6 @@ class GasTurbineType:
         return reconstruct(**kw, fuel=fuel, corrections=corrections)
 
 
-#: The gas-turbine unit type instance registered by :func:`models.unit_types.builtin_unit_types`.
+#: The gas-turbine unit type instance registered by
+#: :func:`models.units.registry.builtin_unit_types`.
 GAS_TURBINE = GasTurbineType()

@@ -30,7 +30,8 @@ import pytest
 
 from daemon import calc
 from daemon.cli import build_parser, main
-from models.unit_types import ComputeOutput, UnitType, builtin_unit_types
+from models.units.base import ComputeOutput, UnitType
+from models.units.registry import builtin_unit_types
 
 GT = builtin_unit_types()["gas_turbine"]
 RESULT_NAMES = [s.name for s in GT.results]

@@ -40,7 +40,7 @@ from daemon.contract import (
 )
 from models.correction.gas_turbine import CorrectionTables
 from models.status import ModelInputError
-from models.unit_types import builtin_unit_types
+from models.units.registry import builtin_unit_types
 
 UNIT_TYPES = builtin_unit_types()
 GT = UNIT_TYPES["gas_turbine"]

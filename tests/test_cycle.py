@@ -22,7 +22,8 @@ from models.gas_turbine import GAS_TURBINE, reconstruct, simulate
 from models.properties import mixtures
 from models.properties.fuel import gas_fuel, liquid_fuel
 from models.status import WARNING_REASONS, Reason
-from models.unit_types import UnitType, builtin_unit_types
+from models.units.base import UnitType
+from models.units.registry import builtin_unit_types
 
 FUEL = gas_fuel(
     {"CH4": 0.93, "C2H6": 0.035, "C3H8": 0.008, "n-C4H10": 0.002, "N2": 0.015, "CO2": 0.01}

@@ -33,7 +33,7 @@ from live_support import promtool_check_metrics
 import daemon
 from daemon.renames import RENAMED_RESULTS
 from daemon.storage import Store, schema
-from models.unit_types import builtin_unit_types
+from models.units.registry import builtin_unit_types
 
 ROOT = Path(__file__).resolve().parents[1]
 DOCS = ROOT / "docs"

@@ -1,4 +1,4 @@
-"""Whole engine (models.reciprocating_engine): forward model -> reconstruction round trips,
+"""Whole engine (models.units.reciprocating.engine): forward model -> reconstruction round trips,
 the forward energy balance against Cantera, element-wise bad data, trade ranges.
 
 Engines and operating points are invented (Kestrel Ridge Energy Park): KR-GE1, a 4.4 MW
@@ -26,13 +26,13 @@ from models.cycles.reciprocating import diesel_efficiency, otto_efficiency
 from models.properties import mixtures
 from models.properties.fuel import gas_fuel, liquid_fuel
 from models.properties.species import INDEX, SPECIES
-from models.reciprocating_engine import (
+from models.status import WARNING_REASONS, ModelInputError, Reason
+from models.units.reciprocating.engine import (
     MEASUREMENTS_OPTIONAL,
     MEASUREMENTS_REQUIRED,
     reconstruct_engine,
     simulate_engine,
 )
-from models.status import WARNING_REASONS, ModelInputError, Reason
 
 RPM = 2 * math.pi / 60
 KR_GE1 = EngineGeometry(0.21, 0.24, 0.48, 20, 12.5)
@@ -360,7 +360,7 @@ def test_misuse_raises() -> None:
 def test_docstring_examples_run() -> None:
     import doctest
 
-    from models import reciprocating_engine
+    from models.units.reciprocating import engine
 
-    result = doctest.testmod(reciprocating_engine, optionflags=doctest.NORMALIZE_WHITESPACE)
+    result = doctest.testmod(engine, optionflags=doctest.NORMALIZE_WHITESPACE)
     assert result.attempted >= 5 and result.failed == 0
