@@ -1,4 +1,4 @@
-"""Whole-cycle reconstruction (models.gas_turbine): identities, independent re-computations
+"""Whole-cycle reconstruction (models.units.gas_turbine.reconstruct): identities, independent re-computations
 on models.properties.mixtures mixtures, element-wise bad-data handling, the unit-type interface.
 
 Operating points are invented (Kestrel Ridge Energy Park, KR-GT1-like ~45 MW and KR-GT3-like
@@ -18,11 +18,11 @@ from models.components.combustor import combustor, exhaust_mixture
 from models.components.compressor import compressor
 from models.components.turbine import turbine
 from models.cycles.brayton import brayton_cycle
-from models.gas_turbine import GAS_TURBINE, reconstruct, simulate
 from models.properties import mixtures
 from models.properties.fuel import gas_fuel, liquid_fuel
 from models.status import WARNING_REASONS, Reason
 from models.units.base import UnitType
+from models.units.gas_turbine.reconstruct import GAS_TURBINE, reconstruct, simulate
 from models.units.registry import builtin_unit_types
 
 FUEL = gas_fuel(

@@ -22,9 +22,9 @@ from typing import Any
 import numpy as np
 import pytest
 
-from models import gas_turbine as fast
 from models.correction.gas_turbine import CorrectionCurve, CorrectionTables
 from models.properties.fuel import gas_fuel
+from models.units.gas_turbine import reconstruct as fast
 
 RTOL = 1e-7  # relative, every result
 TEMPERATURE_ATOL = 1e-4  # K, results in kelvin

@@ -486,8 +486,8 @@ def test_calc_md_degrees_celsius_claim_is_what_validation_does() -> None:
 
 
 def _kr_gt1(**changes: float) -> dict[str, float]:
-    from models.gas_turbine import reconstruct
     from models.properties.fuel import gas_fuel
+    from models.units.gas_turbine.reconstruct import reconstruct
 
     rec = json.loads((EXAMPLES / "kr-gt1-snapshot.json").read_text())
     meas = {k: np.array([v]) for k, v in rec["measurements"].items()}

@@ -29,8 +29,8 @@ ct = pytest.importorskip("cantera")
 
 import cantera_engine as ce  # noqa: E402  (tests/ is on sys.path under pytest)
 
-from models.gas_turbine import GAS_TURBINE  # noqa: E402
 from models.properties.fuel import gas_fuel  # noqa: E402
+from models.units.gas_turbine.reconstruct import GAS_TURBINE  # noqa: E402
 
 # Invented fuel analyses for the Kestrel Ridge Energy Park (not from any real site).
 PIPELINE_GAS: Mapping[str, float] = {

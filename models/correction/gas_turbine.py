@@ -6,8 +6,8 @@ Two methods, always labelled in the results (``correction_method``):
     Model-based.  The measured component health (compressor and turbine isentropic
     efficiencies, combustor pressure loss, combustion efficiency, inlet and exhaust pressure
     ratios, losses) is held, a control law fixes the operating point, and the cycle is run
-    forward twice with :func:`models.gas_turbine.simulate`: at the measured ambient and at the
-    reference ambient.  Then::
+    forward twice with :func:`models.units.gas_turbine.reconstruct.simulate`: at the measured
+    ambient and at the reference ambient.  Then::
 
         P_corr  = P_meas  * P_model(ref) / P_model(meas)                    (1)
         HR_corr = HR_meas * HR_model(ref) / HR_model(meas)                  (2)

@@ -10,8 +10,8 @@ from __future__ import annotations
 from collections.abc import Mapping
 from types import MappingProxyType
 
-from models.gas_turbine import GAS_TURBINE
 from models.units.base import UnitType
+from models.units.gas_turbine.reconstruct import GAS_TURBINE
 
 __all__ = ["builtin_unit_types"]
 
