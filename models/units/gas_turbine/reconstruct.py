@@ -58,7 +58,7 @@ References
 
 from __future__ import annotations
 
-from collections.abc import Callable, Mapping
+from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any, Literal
 
@@ -78,6 +78,17 @@ from models.correction.gas_turbine import (
 from models.properties import mixtures
 from models.properties import thermo_data as _td
 from models.properties.fuel import FuelProperties
+from models.properties.kernel import (
+    DEPARTURE_H,
+    PHI,
+    SPECIES_ROWS,
+    Fluid,
+    Groups,
+    H,
+    departure,
+    departure_coefficients,
+    log_mean,
+)
 from models.properties.species import INDEX, N_SPECIES
 from models.status import ModelInputError, Reason
 from models.units.base import ComputeOutput, FieldSpec
@@ -116,10 +127,6 @@ DEFAULT_PARAMETERS: Mapping[str, float] = {
 #: 8 600-11 000, aeroderivatives from about 8 000, small old units up to about 14 000).
 HEAT_RATE_BAND: tuple[float, float] = (8000.0, 14000.0)
 
-_T_MID = 1000.0
-_TOL = 0.03  # K: Newton step criterion; with quadratic convergence (C < 1e-3 /K) the
-# error after a step of 0.03 K is below 1e-5 K (checked in tests against a tight solve)
-_MAX_IT = 10
 _CHUNK = 4096
 _BLOCK = 8192  # elements per array operation (several chunks)
 
@@ -129,352 +136,22 @@ def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
 
 
 # ============================================================================================
-# Fused property kernel: basis fluids with NASA coefficient rows
+# Basis fluids: dry air, water minus dry air (and, per fuel, its burnt species change)
 # ============================================================================================
-# rows 0-5: h (ascending powers of T, T^0..T^5), 6-10: cp (T^0..T^4),
-# rows 11-16: phi = c11 ln T + c12 T + c13 T^2 + c14 T^3 + c15 T^4 + c16
-_H = slice(0, 6)
-_CP = slice(6, 11)
-_PHI = slice(11, 17)
-_NROW = 17
-
-
-def _species_rows() -> FloatArray:
-    """Mass-specific coefficient rows of every species, shape (2 ranges, N_SPECIES, 17)."""
-    r_i = _td.R_UNIVERSAL / _td.MOLAR_MASS
-    lo = np.asarray(_td.COEFF_LOW, dtype=np.float64)
-    hi = np.asarray(_td.COEFF_HIGH, dtype=np.float64)
-    t = mixtures.T_REF
-    h298 = lo[:, 5] + t * (
-        lo[:, 0] + t * (lo[:, 1] / 2 + t * (lo[:, 2] / 3 + t * (lo[:, 3] / 4 + t * lo[:, 4] / 5)))
-    )
-    out = np.empty((2, N_SPECIES, _NROW))
-    for r, a in enumerate((lo, hi)):
-        out[r, :, 0] = a[:, 5] - h298
-        out[r, :, 1] = a[:, 0]
-        out[r, :, 2] = a[:, 1] / 2
-        out[r, :, 3] = a[:, 2] / 3
-        out[r, :, 4] = a[:, 3] / 4
-        out[r, :, 5] = a[:, 4] / 5
-        out[r, :, 6:11] = a[:, 0:5]
-        out[r, :, 11] = a[:, 0]
-        out[r, :, 12] = a[:, 1]
-        out[r, :, 13] = a[:, 2] / 2
-        out[r, :, 14] = a[:, 3] / 3
-        out[r, :, 15] = a[:, 4] / 4
-        out[r, :, 16] = a[:, 6]
-    out *= r_i[None, :, None]
-    out.flags.writeable = False
-    return out
-
-
-_ROWS = _species_rows()
 _MW = np.asarray(_td.MOLAR_MASS, dtype=np.float64)
 _Y_DRY = np.asarray(mixtures.DRY_AIR * _MW / np.sum(mixtures.DRY_AIR * _MW))
 _M_DRY = float(1.0 / np.sum(_Y_DRY / _MW))
 _M_W = float(_MW[INDEX["H2O"]])
 _R_DRY = mixtures.R_UNIVERSAL / _M_DRY
 _R_W = mixtures.R_UNIVERSAL / _M_W
-_TAB_DRY = np.einsum("s,rsk->rk", _Y_DRY, _ROWS)  # (2, 17)
-_TAB_WMD = _ROWS[:, INDEX["H2O"], :] - _TAB_DRY  # water minus dry air
+_TAB_DRY = np.einsum("s,rsk->rk", _Y_DRY, SPECIES_ROWS)  # (2, 17)
+_TAB_WMD = SPECIES_ROWS[:, INDEX["H2O"], :] - _TAB_DRY  # water minus dry air
 _Y_O2_DRY = float(_Y_DRY[INDEX["O2"]])
 
-_VB = np.asarray(_td.AIR_VIRIAL_B, dtype=np.float64)
-_VC = np.asarray(_td.AIR_VIRIAL_C, dtype=np.float64)
-_VI = np.arange(_VB.size, dtype=np.float64)
-_HR_B = tuple(float(v) for v in _VI * _VB)
-_HR_C = tuple(float(v) for v in _VI * _VC / 2)
-_SR_B = tuple(float(v) for v in -(1 - _VI) * _VB)
-_SR_C = tuple(float(v) for v in -(1 - _VI) * _VC / 2)
-_CPR_B = tuple(float(v) for v in _VI * (1 - _VI) * _VB)
-_CPR_C = tuple(float(v) for v in _VI * (1 - _VI) * _VC / 2)
-_V_T = float(_td.AIR_VIRIAL_T_SCALE)
-_V_P = float(_td.AIR_VIRIAL_P_SCALE)
 
-
-def _poly(c: Any, T: FloatArray) -> FloatArray:
-    """c[0] + c[1] T + ... + c[n-1] T^(n-1) (Horner, in place on one temporary)."""
-    out: FloatArray = c[-1] * T
-    for k in range(len(c) - 2, 0, -1):
-        out += c[k]
-        out *= T
-    out += c[0]
-    return out
-
-
-def _virial(bc: tuple[float, ...], cc: tuple[float, ...], T: FloatArray, p: Num) -> FloatArray:
-    tau = _V_T / T
-    pi = p * (1.0 / _V_P)
-    out: FloatArray = _poly(cc, tau) * pi
-    out += _poly(bc, tau)
-    out *= pi
-    return out
-
-
-def _virial_coeffs(bc: tuple[float, ...], cc: tuple[float, ...], p: Num) -> list[Num]:
-    """Coefficients of the departure polynomial in tau at fixed p (times pi)."""
-    pi = p * (1.0 / _V_P)
-    return [(b + c * pi) * pi for b, c in zip(bc, cc, strict=True)]
-
-
-def _hr(T: FloatArray, p: Num) -> FloatArray:
-    """Real-gas departure (h - h_ig) / (R T) of the air fit (``mixtures.residual``)."""
-    return _virial(_HR_B, _HR_C, T, p)
-
-
-def _sr(T: FloatArray, p: Num) -> FloatArray:
-    """Real-gas departure (s - s_ig) / R."""
-    return _virial(_SR_B, _SR_C, T, p)
-
-
-def _log_mean(a: FloatArray, b: FloatArray) -> FloatArray:
-    """Logarithmic mean (b - a) / ln(b / a) to second order: A - (b - a)^2 / (12 A).
-
-    The constant cp of an isentropic step from a to b is close to cp at this temperature
-    (cp averaged over ln T).  Used for first guesses only: the series is about 1 K low at
-    b / a = 1.9 and 4 K low at b / a = 3, which Newton then removes.
-    """
-    A = 0.5 * (a + b)
-    d = b - a
-    d *= d
-    d /= 12.0 * A
-    A -= d
-    return A
-
-
-#: Start indices of the convergence groups of a block (None: the block is one group).
-Groups = NDArray[np.intp] | None
-
-
-def _newton(
-    step: Callable[[FloatArray], FloatArray], T: FloatArray, groups: Groups
-) -> tuple[FloatArray, NDArray[np.bool_]]:
-    """Newton iteration ``T <- T - step(T)``; returns (T, converged).
-
-    Each convergence group (a chunk of ``chunk_size`` elements) stops on its own when its
-    largest step is below ``_TOL``, exactly as if it were solved alone: a block of several
-    groups gives element for element the numbers of one solve per group, with fewer,
-    longer array operations.  Groups that stop early keep their values while the others
-    go on.
-    """
-    if groups is None:
-        dT = step(T)
-        for it in range(_MAX_IT):
-            if it:
-                dT = step(T)
-            T = T - dT
-            if np.abs(dT).max() < _TOL:
-                break
-            np.clip(T, 100.0, 5000.0, out=T)
-        return T, np.abs(dT) < _TOL
-    active = np.ones(groups.size, dtype=bool)
-    sizes = np.diff(groups, append=T.size)
-    T_res: FloatArray | None = None
-    dT_res: FloatArray | None = None
-    dT = step(T)
-    for it in range(_MAX_IT):
-        if it:
-            dT = step(T)
-        T = T - dT
-        stop = active & (np.maximum.reduceat(np.abs(dT), groups) < _TOL)
-        if stop.any():
-            active &= ~stop
-            if not active.any() and T_res is None:
-                return T, np.abs(dT) < _TOL
-            if T_res is None or dT_res is None:
-                T_res, dT_res = T.copy(), dT.copy()
-            else:
-                lanes = np.repeat(stop, sizes)
-                np.copyto(T_res, T, where=lanes)
-                np.copyto(dT_res, dT, where=lanes)
-            if not active.any():
-                return T_res, np.abs(dT_res) < _TOL
-        np.clip(T, 100.0, 5000.0, out=T)
-    if T_res is None or dT_res is None:
-        return T, np.abs(dT) < _TOL
-    lanes = np.repeat(active, sizes)
-    np.copyto(T_res, T, where=lanes)
-    np.copyto(dT_res, dT, where=lanes)
-    return T_res, np.abs(dT_res) < _TOL
-
-
-class _Fluid:
-    """A fluid whose mass-specific coefficient rows are ``base + sum(w_k * tab_k)``.
-
-    Quantities are per kg of the *reference mass* (kg of air for the exhaust gas).  Rows are
-    built lazily, per range and property group, once per chunk; a fluid made with
-    :meth:`with_part` reuses the rows of its base.
-    """
-
-    __slots__ = ("R", "_cache", "base", "parts")
-
-    def __init__(
-        self, parts: list[tuple[FloatArray, Num]], R: Num, base: _Fluid | None = None
-    ) -> None:
-        self.parts = parts
-        self.R = R
-        self.base = base
-        self._cache: dict[tuple[int, int], FloatArray] = {}
-
-    def with_part(self, tab: FloatArray, w: Num, R: Num) -> _Fluid:
-        return _Fluid([(tab, w)], self.R + w * R, base=self)
-
-    def _rows(self, r: int, g: slice) -> FloatArray:
-        key = (r, g.start)
-        c = self._cache.get(key)
-        if c is None:
-            acc: FloatArray | None = None if self.base is None else self.base._rows(r, g)
-            for tab, w in self.parts:
-                t = tab[r, g]
-                t = t.reshape(t.shape[0], -1)  # (k, 1) or (k, n)
-                if isinstance(w, float) and w == 1.0:
-                    acc = t if acc is None else acc + t
-                else:
-                    term = t * w  # a new array: accumulate in place
-                    if acc is not None:
-                        term += acc
-                    acc = term
-            assert acc is not None
-            c = acc
-            self._cache[key] = c
-        return c
-
-    def _eval(self, g: slice, T: FloatArray, phi: bool = False) -> FloatArray:
-        low = T < _T_MID
-        if low.all():
-            return self._eval_r(0, g, T, phi)
-        if not low.any():
-            return self._eval_r(1, g, T, phi)
-        return np.where(low, self._eval_r(0, g, T, phi), self._eval_r(1, g, T, phi))
-
-    def _eval2(self, g: slice, T: FloatArray, phi: bool) -> tuple[FloatArray, FloatArray]:
-        """(h or phi, cp) at T with one range check."""
-        low = T < _T_MID
-        if low.all():
-            return self._eval_r(0, g, T, phi), self._eval_r(0, _CP, T, False)
-        if not low.any():
-            return self._eval_r(1, g, T, phi), self._eval_r(1, _CP, T, False)
-        return (
-            np.where(low, self._eval_r(0, g, T, phi), self._eval_r(1, g, T, phi)),
-            np.where(low, self._eval_r(0, _CP, T, False), self._eval_r(1, _CP, T, False)),
-        )
-
-    def _eval_r(self, r: int, g: slice, T: FloatArray, phi: bool) -> FloatArray:
-        c = self._rows(r, g)
-        if not phi:
-            return _poly(c, T)
-        out: FloatArray = c[4] * T  # c1 T + c2 T^2 + c3 T^3 + c4 T^4 (Horner)
-        for k in (3, 2, 1):
-            out += c[k]
-            out *= T
-        lnT = np.log(T)
-        lnT *= c[0]
-        out += lnT
-        out += c[5]
-        return out
-
-    def h(self, T: FloatArray, p: Num | None = None) -> FloatArray:
-        out = self._eval(_H, T)
-        if p is not None:
-            out = out + self.R * T * _hr(T, p)
-        return out
-
-    def cp(self, T: FloatArray) -> FloatArray:
-        return self._eval(_CP, T)
-
-    def phi(self, T: FloatArray, p: Num | None = None) -> FloatArray:
-        """phi(T) [+ R s_res(T, p)]: the entropy function without the pressure term."""
-        out = self._eval(_PHI, T, phi=True)
-        if p is not None:
-            out = out + self.R * _sr(T, p)
-        return out
-
-    def T_from_h(
-        self, H: FloatArray, p: Num | None, T: FloatArray, groups: Groups = None
-    ) -> tuple[FloatArray, NDArray[np.bool_]]:
-        """Newton on h(T, p) = H from the guess T; returns (T, converged).
-
-        The real-gas term enters the function, not the derivative (its share of cp is
-        below 1e-3), so the last step's error is below 1e-3 of the step criterion.
-        """
-        vc = None if p is None else _virial_coeffs(_HR_B, _HR_C, p)
-        # real-gas share of cp, frozen at the first guess (keeps Newton near-quadratic)
-        cres = 0.0 if p is None else self.R * _virial(_CPR_B, _CPR_C, T, p)
-
-        def step(T: FloatArray) -> FloatArray:
-            dT, cp = self._eval2(_H, T, False)
-            cp += cres
-            if vc is not None:
-                v = _poly(vc, _V_T / T)
-                v *= T
-                v *= self.R
-                dT += v
-            dT -= H
-            dT /= cp
-            return dT
-
-        return _newton(step, T, groups)
-
-    def T_from_phi(
-        self, target: FloatArray, p: Num | None, T: FloatArray, groups: Groups = None
-    ) -> tuple[FloatArray, NDArray[np.bool_]]:
-        """Newton on phi(T) + R s_res(T, p) = target from the guess T."""
-        vc = None if p is None else _virial_coeffs(_SR_B, _SR_C, p)
-        cres = 0.0 if p is None else self.R * _virial(_CPR_B, _CPR_C, T, p)
-
-        def step(T: FloatArray) -> FloatArray:
-            dT, cp = self._eval2(_PHI, T, True)
-            cp += cres
-            if vc is not None:
-                v = _poly(vc, _V_T / T)
-                v *= self.R
-                dT += v
-            dT -= target
-            dT *= T
-            dT /= cp
-            return dT
-
-        return _newton(step, T, groups)
-
-    def h_at(self, T: FloatArray, vc: list[Num]) -> FloatArray:
-        """h(T, p) with the departure coefficients ``vc = _virial_coeffs(_HR_B, _HR_C, p)``."""
-        v = _poly(vc, _V_T / T)
-        v *= T
-        v *= self.R
-        v += self._eval(_H, T)
-        return v
-
-    def isentropic_T(
-        self,
-        T1: FloatArray,
-        p1: Num,
-        p2: Num,
-        guess: FloatArray | None = None,
-        *,
-        lnpr: Num | None = None,
-        phi1: FloatArray | None = None,
-        groups: Groups = None,
-    ) -> tuple[FloatArray, NDArray[np.bool_]]:
-        """T2s with s(T2s, p2) = s(T1, p1), real gas at both ends.
-
-        ``lnpr = ln(p2/p1)`` and the ideal-gas ``phi1 = phi(T1)`` may be passed if known.
-        """
-        Rl = self.R * (np.log(p2 / p1) if lnpr is None else lnpr)
-        if guess is None:
-            target, cp1 = self._eval2(_PHI, T1, True)
-            # first guess with cp at T1, second with cp at the mean temperature
-            guess = T1 * np.exp(Rl / cp1)
-            guess = T1 * np.exp(Rl / self.cp(_log_mean(T1, guess)))
-        else:
-            target = self.phi(T1) if phi1 is None else phi1
-        target = target + self.R * _sr(T1, p1)
-        target += Rl
-        return self.T_from_phi(target, p2, np.asarray(guess, dtype=np.float64), groups)
-
-
-def _air_fluid(y_w: Num) -> _Fluid:
+def _air_fluid(y_w: Num) -> Fluid:
     """Humid air per kg of humid air, water mass fraction y_w."""
-    return _Fluid([(_TAB_DRY, 1.0), (_TAB_WMD, y_w)], _R_DRY + y_w * (_R_W - _R_DRY))
+    return Fluid([(_TAB_DRY, 1.0), (_TAB_WMD, y_w)], _R_DRY + y_w * (_R_W - _R_DRY))
 
 
 @dataclass(frozen=True)
@@ -502,7 +179,7 @@ def _fuel_data(fuel: FuelProperties, n: int) -> _FuelData:
         raise ModelInputError("fuel.product_delta", pd.shape, f"(N_SPECIES,) or (N, {N_SPECIES})")
     if pd.ndim == 2 and pd.shape[0] != n:
         raise ModelInputError("fuel", pd.shape[0], f"a single fuel or a batch of {n}")
-    tab = np.einsum("...s,rsk->rk...", pd, _ROWS)
+    tab = np.einsum("...s,rsk->rk...", pd, SPECIES_ROWS)
     R = np.asarray(mixtures.R_UNIVERSAL * (pd @ (1.0 / _MW)))
     o2 = np.asarray(-pd[..., INDEX["O2"]])
     valid = np.asarray(np.isfinite(lhv) & (lhv > 0) & np.isfinite(hhv) & (o2 > 0))
@@ -642,7 +319,7 @@ class _RefAmbient:
     """Constants of the reference ambient, computed once per call."""
 
     y_w: float  # water mass fraction of reference humid air
-    air: _Fluid  # reference humid air (scalar coefficient rows, cached across chunks)
+    air: Fluid  # reference humid air (scalar coefficient rows, cached across chunks)
 
 
 def _reference_ambient() -> _RefAmbient:
@@ -744,13 +421,13 @@ def _chunk(
     p2c = np.where(pr_bad, p1 * 15.0, p2)
     PR = p2c / p1
     lnPR = np.log(PR)
-    phi1, cp1 = air._eval2(_PHI, T1, True)
+    phi1, cp1 = air.evaluate_with_cp(PHI, T1)
     Rl = R_a * lnPR
     guess = T1 * np.exp(Rl / cp1)
-    guess = T1 * np.exp(Rl / air.cp(_log_mean(T1, guess)))
+    guess = T1 * np.exp(Rl / air.cp(log_mean(T1, guess)))
     T2s, conv = air.isentropic_T(T1, p1, p2c, guess, lnpr=lnPR, phi1=phi1, groups=groups)
     h1 = air.h(T1, p1)
-    vc2 = _virial_coeffs(_HR_B, _HR_C, p2c)
+    vc2 = departure_coefficients(DEPARTURE_H, p2c)
     h2 = air.h_at(T2c, vc2)
     h2s = air.h_at(T2s, vc2)
     w_c = h2 - h1
@@ -769,9 +446,11 @@ def _chunk(
     # ---- shaft power and heat balance -----------------------------------------------------
     P_shaft = P / eta_gen + pmech
     q_net = hf + (eta_b - closs) * lhv  # J per kg fuel reaching the gas
-    hr4 = _hr(T4, p4)  # departure at (T4, p4), shared by the air and the products
-    h4a = air._eval(_H, T4) + R_a * T4 * hr4
-    pd = _Fluid([(fd.tab, 1.0)], fd.R)
+    hr4 = departure(
+        DEPARTURE_H, T4, p4
+    )  # departure at (T4, p4), shared by the air and the products
+    h4a = air.evaluate(H, T4) + R_a * T4 * hr4
+    pd = Fluid([(fd.tab, 1.0)], fd.R)
     h4pd = pd.h(T4) + fd.R * T4 * hr4
     ma_hb = (mf * (q_net - h4pd) - P_shaft) / (h4a - h1)
     g_hb = g_amb | bT1 | bp1 | bT4 | bp4 | g_fp | bTf | bpar_gen | bpar_cb
@@ -840,7 +519,7 @@ def _chunk(
     eta_B = 1.0 - np.exp(lnPR * (-0.4 / 1.4))
     carnot = 1.0 - T1 / T3
     # ideal cycle on the real fluid: isentropic machines, no losses, expansion to p1
-    hr3i = _hr(T3, p2c)
+    hr3i = departure(DEPARTURE_H, T3, p2c)
     ha3 = air.h(T3, None) + R_a * T3 * hr3i
     hpd3 = pd.h(T3) + fd.R * T3 * hr3i
     f_i = (ha3 - h2s) / (hf + lhv - hpd3)
@@ -989,7 +668,7 @@ def _forward_reference(
 
 def _forward_core(
     *,
-    air: _Fluid,
+    air: Fluid,
     y_w: Num,
     T1: FloatArray,
     p1: FloatArray,
@@ -1020,8 +699,8 @@ def _forward_core(
     h2 = h1 + (air.h(T2s, p2) - h1) / eta_c
     p3 = p2 * (1.0 - dp)
     q_net = hf + (eta_b - closs) * lhv
-    hr3 = _hr(T3a, p3)
-    pd = _Fluid([(fd.tab, 1.0)], fd.R)
+    hr3 = departure(DEPARTURE_H, T3a, p3)
+    pd = Fluid([(fd.tab, 1.0)], fd.R)
     ha3 = air.h(T3a) + air.R * T3a * hr3
     hpd3 = pd.h(T3a) + fd.R * T3a * hr3
     f = (ha3 - h2) / (q_net - hpd3)
@@ -1242,7 +921,7 @@ def reconstruct(
     status = np.zeros(n, dtype=np.uint32)
     ref = _reference_ambient()
     # scalar parameters stay Python floats (same arithmetic, no per-chunk slicing)
-    # blocks of several chunks; every chunk still converges on its own (see _newton)
+    # blocks of several chunks; every chunk still converges on its own (kernel.newton)
     block = step * max(1, _BLOCK // step)
     with np.errstate(all="ignore"):
         for i0 in range(0, n, block):
