@@ -420,12 +420,14 @@ def newton(
     ([1414.21, 1414.21], [True, True])
     """
     lo, hi = _CLIP
+    if T.size == 0:
+        return T.copy(), np.ones(T.shape, dtype=bool)
     if groups is None:
         dT = step(T)
         for it in range(max_iter):
             if it:
                 dT = step(T)
-            T = T - dT
+            T = np.asarray(T - dT)  # 0-d stays an array
             if np.abs(dT).max() < tol:
                 break
             np.clip(T, lo, hi, out=T)
@@ -438,7 +440,7 @@ def newton(
     for it in range(max_iter):
         if it:
             dT = step(T)
-        T = T - dT
+        T = np.asarray(T - dT)
         stop = active & (np.maximum.reduceat(np.abs(dT), groups) < tol)
         if stop.any():
             active &= ~stop
@@ -543,13 +545,39 @@ class Fluid:
     1039.7
     """
 
-    __slots__ = ("R", "_cache", "base", "parts")
+    __slots__ = ("R", "_cache", "_y", "base", "parts")
 
     def __init__(self, parts: list[tuple[FloatArray, Num]], R: Num, base: Fluid | None = None):
         self.parts = parts
         self.R = R
         self.base = base
+        self._y: tuple[FloatArray, NDArray[np.intp]] | None = None
         self._cache: dict[tuple[int, int], FloatArray] = {}
+
+    @classmethod
+    def from_mass_fractions(
+        cls, y: FloatArray, R: Num, species: NDArray[np.intp] | None = None
+    ) -> Fluid:
+        """A fluid of composition ``y`` whose rows are built lazily, per range and row group.
+
+        Parameters
+        ----------
+        y : ndarray, shape (..., k)
+            Mass fractions [-] of the species ``species`` (default: all N_SPECIES).
+        R : float or ndarray
+            Gas constant of the mixture [J/(kg K)], batch shape (...).
+        species : ndarray of intp, optional
+            Species indices of the k columns of ``y``.
+
+        Returns
+        -------
+        Fluid
+            Rows as :func:`mixture_rows` gives them, computed only for the groups used.
+        """
+        fluid = cls([], R)
+        idx = np.arange(N_SPECIES) if species is None else np.asarray(species, dtype=np.intp)
+        fluid._y = (y, idx)
+        return fluid
 
     def with_part(self, tab: FloatArray, w: Num, R: Num) -> Fluid:
         """Return this fluid plus ``w`` times the rows ``tab`` (gas constant ``R`` per unit w).
@@ -589,6 +617,11 @@ class Fluid:
         c = self._cache.get(key)
         if c is None:
             acc: FloatArray | None = None if self.base is None else self.base.rows(r, g)
+            if self._y is not None:
+                y, idx = self._y
+                sp = SPECIES_ROWS[r, idx, g]  # (k, rows)
+                c0 = (sp.T @ y.reshape(-1, idx.size).T).reshape((sp.shape[1], *y.shape[:-1]))
+                acc = c0[:, None] if c0.ndim == 1 else c0
             for tab, w in self.parts:
                 t = tab[r, g]
                 if t.ndim == 1:
