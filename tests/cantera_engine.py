@@ -31,7 +31,7 @@ Humid air
 The water mole fraction at the compressor inlet is fixed by the ambient state: CoolProp's
 humid-air model (ASHRAE RP-1485, HAPropsSI output ``psi_w``), which includes the enhancement
 factor and refers RH to ice below 0 degC (``saturation="ice"``, the default, the same
-convention as ``models.properties.mixtures.humid_air``), or - for ``saturation="water"`` below 0 degC, the
+convention as ``models.properties.humid_air.humid_air``), or - for ``saturation="water"`` below 0 degC, the
 meteorological convention of relative humidity over liquid water - ``RH * f * p_sat,w(T) / p``
 with CoolProp's IAPWS-95 water.
 

@@ -18,7 +18,7 @@ from models.components.combustor import combustor, exhaust_mixture
 from models.components.compressor import compressor
 from models.components.turbine import turbine
 from models.cycles.brayton import brayton_cycle
-from models.properties import mixtures
+from models.properties import humid_air, mixtures
 from models.properties.fuel import gas_fuel, liquid_fuel
 from models.status import WARNING_REASONS, Reason
 from models.units.base import UnitType
@@ -137,7 +137,7 @@ def test_heat_balance_closed_form_equals_fixed_point_iteration() -> None:
     # converge to the closed form of reconstruct().
     meas, _ = _sim(n=12, seed=8)
     out = _recon(meas)
-    x, _ = mixtures.humid_air(meas["ambient_temperature"], meas["ambient_pressure"],
+    x, _ = humid_air.humid_air(meas["ambient_temperature"], meas["ambient_pressure"],
                          meas["ambient_relative_humidity"])  # fmt: skip
     air = mixtures.Mixture.from_mole_fractions(x)
     T1, p1 = meas["compressor_inlet_temperature"], meas["compressor_inlet_pressure"]
@@ -166,7 +166,7 @@ def test_fused_kernel_matches_component_functions() -> None:
     # on mixtures.Mixture objects against the fused kernel of reconstruct().
     meas, _ = _sim(n=10, seed=21)
     v = _recon(meas).values
-    x, _ = mixtures.humid_air(meas["ambient_temperature"], meas["ambient_pressure"],
+    x, _ = humid_air.humid_air(meas["ambient_temperature"], meas["ambient_pressure"],
                          meas["ambient_relative_humidity"])  # fmt: skip
     air = mixtures.Mixture.from_mole_fractions(x)
     T1, p1 = meas["compressor_inlet_temperature"], meas["compressor_inlet_pressure"]

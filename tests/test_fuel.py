@@ -458,12 +458,11 @@ def test_sensible_enthalpy_batch_and_temperature_array() -> None:
 
 
 def test_stoichiometric_air_with_cycle_dry_air() -> None:
-    gas_mod = pytest.importorskip("models.properties.mixtures")
-    # models.properties.mixtures.DRY_AIR (ISO 2533 basis) and our CIPM-2007 standard air: the O2 mass
-    # fractions agree within 0.1 %, so both stoichiometric ratios agree as closely.
+    humid_air = pytest.importorskip("models.properties.humid_air")
+    # models.properties.humid_air.DRY_AIR (ISO 2533 basis) and our CIPM-2007 standard air: the
+    # O2 mass fractions agree within 0.1 %, so both stoichiometric ratios agree as closely.
     f = gas_fuel(EX1)
-    x = np.asarray(gas_mod.DRY_AIR)
-    y = x * gas_mod.MOLAR_MASS / np.sum(x * gas_mod.MOLAR_MASS)
+    y = np.asarray(humid_air.DRY_AIR_MASS_FRACTIONS)
     assert stoichiometric_air_ratio(f, y) == pytest.approx(f.stoichiometric_air, rel=1e-3)
 
 

@@ -545,7 +545,8 @@ def test_validity_md_fuel_preheat_figures_are_recomputed() -> None:
 
 
 def test_glossary_and_method_state_one_humidity_convention_below_freezing() -> None:
-    from models.properties import mixtures
+    from models.properties import humid_air
+    from models.properties.species import INDEX
 
     glossary = " ".join(GLOSSARY.read_text(encoding="utf-8").split())
     method = " ".join((DOCS / "method.md").read_text(encoding="utf-8").split())
@@ -554,13 +555,9 @@ def test_glossary_and_method_state_one_humidity_convention_below_freezing() -> N
     assert "over liquid water)" not in glossary
     # and the model does so: below 273.16 K the saturation pressure is the ice branch, which
     # is below the (extrapolated) liquid one (IAPWS: sublimation < vaporisation below 0 degC)
-    x, _ = mixtures.humid_air(263.15, 101325.0, 1.0)
-    p_w = (
-        float(x[mixtures.INDEX["H2O"]])
-        * 101325.0
-        / float(mixtures.enhancement_factor(263.15, 101325.0))
-    )
-    assert p_w == pytest.approx(float(mixtures.saturation_pressure(263.15)), rel=1e-9)
+    x, _ = humid_air.humid_air(263.15, 101325.0, 1.0)
+    p_w = float(x[INDEX["H2O"]]) * 101325.0 / float(humid_air.enhancement_factor(263.15, 101325.0))
+    assert p_w == pytest.approx(float(humid_air.saturation_pressure(263.15)), rel=1e-9)
     assert 255.0 < p_w < 265.0  # about 260 Pa over ice at -10 degC (from memory; water: 286)
 
 

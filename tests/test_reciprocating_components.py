@@ -36,7 +36,7 @@ from models.components.reciprocating import (
     turbocharger_compressor,
     volumetric_efficiency,
 )
-from models.properties import mixtures
+from models.properties import humid_air, mixtures
 from models.properties.fuel import gas_fuel, liquid_fuel
 from models.properties.species import INDEX
 from models.status import ModelInputError, Reason
@@ -54,7 +54,7 @@ DRY_X = {
     "O2": 0.209476,
     "Ar": 0.00934,
     "CO2": 0.0004,
-}  # models.properties.mixtures.DRY_AIR
+}  # models.properties.humid_air.DRY_AIR
 
 
 # ------------------------------------------------------------------------------------------
@@ -226,8 +226,8 @@ def test_exhaust_oxygen_against_cantera_equilibrium_natural_gas(lam: float, basi
 def test_excess_air_from_oxygen_liquid_fuel_in_humid_air(basis: str) -> None:
     # Oracle: Cantera equilibrium of propane, whose C/H mass fractions (0.8171 / 0.1829 by
     # element balance) describe the liquid fuel: the exhaust depends on the elements only.
-    # Humid air at 30 degC, 70 % RH from models.properties.mixtures.humid_air feeds both sides.
-    xh, _ = mixtures.humid_air(303.15, 1.0e5, 0.7)
+    # Humid air at 30 degC, 70 % RH from models.properties.humid_air.humid_air feeds both sides.
+    xh, _ = humid_air.humid_air(303.15, 1.0e5, 0.7)
     air = mixtures.Mixture.from_mole_fractions(xh)
     air_x = {k: float(xh[INDEX[k]]) for k in ("N2", "O2", "Ar", "CO2", "H2O")}
     mC, mH = 3 * 12.0106, 8 * 1.00794
@@ -278,7 +278,7 @@ def test_excess_air_bad_readings() -> None:
 
 
 def test_excess_air_vectorised_over_humid_air_batch() -> None:
-    xh, _ = mixtures.humid_air(np.array([280.0, 300.0, np.nan]), 1.0e5, 0.5)
+    xh, _ = humid_air.humid_air(np.array([280.0, 300.0, np.nan]), 1.0e5, 0.5)
     air = mixtures.Mixture.from_mole_fractions(xh)
     x, st = exhaust_oxygen(2.0, gas_fuel(NG), air, "wet")
     assert st[0] == 0 and st[1] == 0 and np.isnan(x[2])

@@ -31,19 +31,19 @@ from models.cycles.reciprocating import (
     otto_cycle,
     otto_efficiency,
 )
-from models.properties import mixtures
+from models.properties import humid_air, mixtures
 from models.status import ModelInputError, Reason
 
 ct = pytest.importorskip("cantera")
 simpson = pytest.importorskip("scipy.integrate").simpson
 
-DRY = mixtures.Mixture.from_mole_fractions(mixtures.DRY_AIR)
+DRY = mixtures.Mixture.from_mole_fractions(humid_air.DRY_AIR)
 _DRY_X = {
     "N2": 0.78084,
     "O2": 0.209476,
     "Ar": 0.00934,
     "CO2": 0.0004,
-}  # as models.properties.mixtures.DRY_AIR
+}  # as models.properties.humid_air.DRY_AIR
 
 
 def _constant_cp_gas(gamma: float, R: float) -> object:
@@ -300,7 +300,7 @@ def test_variable_property_efficiency_falls_with_heat_input() -> None:
 
 def test_vectorised_over_a_batch_of_mixtures() -> None:
     # One humid-air composition per element: the batch equals the element-by-element result.
-    x, _ = mixtures.humid_air(np.array([280.0, 300.0, 310.0]), 1.0e5, np.array([0.2, 0.6, 0.9]))
+    x, _ = humid_air.humid_air(np.array([280.0, 300.0, 310.0]), 1.0e5, np.array([0.2, 0.6, 0.9]))
     mix = mixtures.Mixture.from_mole_fractions(x)
     q = np.array([1.2e6, 1.4e6, 1.6e6])
     batch = diesel_cycle(330.0, 3.0e5, 16.0, cycle_heat_input=q, fluid=mix)

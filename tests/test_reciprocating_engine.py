@@ -23,7 +23,7 @@ from models.components.reciprocating import (
 )
 from models.correction.iso3046 import ISO3046_EXPONENTS
 from models.cycles.reciprocating import diesel_efficiency, otto_efficiency
-from models.properties import mixtures
+from models.properties import humid_air
 from models.properties.fuel import gas_fuel, liquid_fuel
 from models.properties.species import INDEX, SPECIES
 from models.status import WARNING_REASONS, ModelInputError, Reason
@@ -245,7 +245,7 @@ def test_forward_exhaust_temperature_against_cantera_energy_balance() -> None:
             sensors[k][i]
             for k in ("ambient_temperature", "ambient_pressure", "ambient_relative_humidity")
         )
-        xa, _ = mixtures.humid_air(T0, p0, rh)
+        xa, _ = humid_air.humid_air(T0, p0, rh)
         air = {n: float(xa[INDEX[n]]) for n in names[:5]}
         m_f, m_a = sensors["fuel_mass_flow"][i], sensors["air_mass_flow"][i]
         sol.TPX = T0, p0, air

@@ -55,7 +55,7 @@ from models.cycles.reciprocating import (
     dual_cycle,
     otto_cycle,
 )
-from models.properties import mixtures
+from models.properties import humid_air, mixtures
 from models.properties.fuel import FuelProperties
 from models.properties.species import INDEX, SPECIES
 from models.status import ModelInputError, Reason
@@ -442,8 +442,8 @@ def relative_efficiency(
 # Combustion stoichiometry
 # --------------------------------------------------------------------------------------------
 def dry_air() -> mixtures.Mixture:
-    """Dry air of :data:`models.properties.mixtures.DRY_AIR` as a mixture."""
-    return mixtures.Mixture.from_mole_fractions(mixtures.DRY_AIR)
+    """Dry air of :data:`models.properties.humid_air.DRY_AIR` as a mixture."""
+    return mixtures.Mixture.from_mole_fractions(humid_air.DRY_AIR)
 
 
 _M = mixtures.MOLAR_MASS

@@ -19,7 +19,7 @@ Method (ISO 3046-1 power adjustment, the "general method" also used by ISO 15550
 k is the ratio of indicated power (site x over reference r), alpha the power adjustment
 factor, beta the fuel consumption adjustment factor, eta_m the mechanical efficiency at the
 declared power, p_s the saturation pressure of water at the air temperature (IAPWS, via
-:func:`models.properties.mixtures.saturation_pressure`), and (a, m, n, s) the humidity factor and
+:func:`models.properties.humid_air.saturation_pressure`), and (a, m, n, s) the humidity factor and
 exponents of the engine type (:data:`ISO3046_EXPONENTS`).  The 0.7 is the standard's share of the
 friction losses that stays constant.  Measured site values are corrected to reference by
 inverting (4): ``P_r = P_x / alpha``, ``b_r = b_x / beta`` (and the fuel flow at that power
@@ -62,7 +62,7 @@ from types import MappingProxyType
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models.properties import mixtures
+from models.properties import humid_air
 from models.status import Reason
 
 __all__ = [
@@ -243,8 +243,8 @@ def indicated_power_ratio(
     _flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
     _flag(status, outside, Reason.CORRECTION_UNAVAILABLE)
     ok = status == 0
-    ps = mixtures.saturation_pressure(np.where(ok, Tb, 298.0))
-    ps_r = float(mixtures.saturation_pressure(reference.temperature))
+    ps = humid_air.saturation_pressure(np.where(ok, Tb, 298.0))
+    ps_r = float(humid_air.saturation_pressure(reference.temperature))
     a, m, n, s = exponents.a, exponents.m, exponents.n, exponents.s
     dry_x = np.where(ok, pb, 1.0e5) - a * np.where(ok, rb, 0.0) * ps
     dry_r = reference.pressure - a * reference.relative_humidity * ps_r
@@ -506,7 +506,7 @@ def spark_ignition_correction_factor(
     _flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
     ok = status == 0
     Ts = np.where(ok, Tb, 298.0)
-    pd = np.where(ok, pb, 1e5) - np.where(ok, rb, 0.0) * mixtures.saturation_pressure(Ts)
+    pd = np.where(ok, pb, 1e5) - np.where(ok, rb, 0.0) * humid_air.saturation_pressure(Ts)
     with np.errstate(invalid="ignore", divide="ignore"):
         alpha = (99.0e3 / pd) ** 1.2 * (Ts / 298.0) ** 0.6
         outside = ok & (

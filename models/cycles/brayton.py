@@ -205,7 +205,8 @@ def brayton_cycle(
     component efficiencies:
 
     >>> from models.properties.fuel import gas_fuel
-    >>> x, _ = mixtures.humid_air(291.45, 100850.0, 0.62)
+    >>> from models.properties.humid_air import humid_air
+    >>> x, _ = humid_air(291.45, 100850.0, 0.62)
     >>> air = mixtures.Mixture.from_mole_fractions(x)
     >>> fuel = gas_fuel({"CH4": 0.931, "C2H6": 0.038, "C3H8": 0.008, "n-C4H10": 0.0015,
     ...     "i-C4H10": 0.0012, "n-C5H12": 0.0003, "N2": 0.012, "CO2": 0.008})

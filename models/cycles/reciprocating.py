@@ -65,7 +65,7 @@ from typing import Literal, Protocol
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models.properties import mixtures
+from models.properties import humid_air, mixtures
 from models.status import ModelInputError, Reason
 
 __all__ = [
@@ -88,8 +88,8 @@ StatusArray = NDArray[np.uint32]
 CORNERS: tuple[str, ...] = ("1", "2", "3a", "3b", "4")
 #: Ratio of specific heats of the cold-air standard [-].
 GAMMA_AIR: float = 1.4
-#: Specific gas constant of :data:`models.properties.mixtures.DRY_AIR` [J/(kg K)] (287.04).
-R_DRY_AIR: float = float(mixtures.R_UNIVERSAL / (mixtures.DRY_AIR @ mixtures.MOLAR_MASS))
+#: Specific gas constant of :data:`models.properties.humid_air.DRY_AIR` [J/(kg K)] (287.04).
+R_DRY_AIR: float = float(mixtures.R_UNIVERSAL / (humid_air.DRY_AIR @ mixtures.MOLAR_MASS))
 
 _MAX_ITER = 25
 _T_TOL = 1e-9  # K, Newton step at convergence

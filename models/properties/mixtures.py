@@ -1,4 +1,4 @@
-"""Ideal-gas mixture properties, humid air and the real-gas departure of air-like gases.
+"""Ideal-gas mixture properties and the real-gas departure of air-like gases.
 
 All quantities are SI: T [K], p [Pa] (absolute), h [J/kg], cp and s [J/(kg K)], molar mass
 [kg/mol], compositions as mole (``x``) or mass (``y``) fractions over
@@ -11,7 +11,7 @@ Misuse by the caller (a composition with negative entries or not summing to 1, a
 length) raises :class:`models.status.ModelInputError`.  Bad plant data never raises: the affected
 elements are NaN and the solvers return a ``uint32`` status array of :class:`models.status.Reason`
 bits (``TEMPERATURE_OUT_OF_RANGE``, ``NOT_CONVERGED``, ``INPUT_MISSING``, ``INPUT_NONPHYSICAL``,
-``PRESSURE_OUT_OF_RANGE``, ``HUMIDITY_SATURATED``).  The plain property functions (``h``, ``cp``,
+``PRESSURE_OUT_OF_RANGE``).  The plain property functions (``h``, ``cp``,
 ``s0``, ``s``) return NaN outside ``T_MIN..T_MAX`` without a status array.
 
 One engine
@@ -26,18 +26,9 @@ References
 ----------
 .. [1] B. J. McBride, S. Gordon, M. A. Reno, "Coefficients for Calculating Thermodynamic and
    Transport Properties of Individual Species", NASA TM-4513, 1993.
-.. [2] W. Wagner, A. Pruss, "The IAPWS formulation 1995 for the thermodynamic properties of
-   ordinary water substance for general and scientific use", J. Phys. Chem. Ref. Data 31
-   (2002) 387-535 (auxiliary vapour-pressure equation, eq. 2.5).
-.. [3] W. Wagner, T. Riethmann, R. Feistel, A. H. Harvey, "New equations for the sublimation
-   pressure and melting pressure of H2O ice Ih", J. Phys. Chem. Ref. Data 40 (2011) 043103
-   (IAPWS R14-08(2011)).
-.. [4] A. Picard, R. S. Davis, M. Glaeser, K. Fujii, "Revised formula for the density of moist
-   air (CIPM-2007)", Metrologia 45 (2008) 149-155.
-.. [5] E. W. Lemmon, R. T. Jacobsen, S. G. Penoncello, D. G. Friend, "Thermodynamic properties
+.. [2] E. W. Lemmon, R. T. Jacobsen, S. G. Penoncello, D. G. Friend, "Thermodynamic properties
    of air and mixtures of nitrogen, argon, and oxygen from 60 to 2000 K at pressures to
    2000 MPa", J. Phys. Chem. Ref. Data 29 (2000) 331-385.
-.. [6] ISO 2533:1975, Standard Atmosphere, Table 1 (composition of dry air).
 """
 
 from __future__ import annotations
@@ -51,26 +42,22 @@ from numpy.typing import ArrayLike, NDArray
 
 from models.properties import kernel
 from models.properties import thermo_data as _td
-from models.properties.species import INDEX, N_SPECIES, SPECIES
+from models.properties.species import N_SPECIES, SPECIES
 from models.status import ModelInputError, Reason
 
 __all__ = [
-    "DRY_AIR",
     "MAX_ITER",
     "MOLAR_MASS",
     "P_MAX_REAL",
     "P_REF",
-    "RH_TOLERANCE",
     "R_UNIVERSAL",
     "T_MAX",
     "T_MIN",
     "T_REF",
     "Mixture",
+    "check_composition",
     "compressibility",
-    "enhancement_factor",
-    "humid_air",
     "residual",
-    "saturation_pressure",
 ]
 
 FloatArray = NDArray[np.float64]
@@ -95,27 +82,8 @@ MOLAR_MASS.flags.writeable = False
 MAX_ITER: int = 8
 #: Convergence criterion of the temperature solvers [K].
 _T_TOL: float = 1e-6
-#: Relative humidity above 1 accepted (and capped to 1) before it counts as nonphysical [-].
-RH_TOLERANCE: float = 1e-3
 #: Tolerance on the sum of a composition [-].
 _SUM_TOL: float = 1e-5
-
-
-def _dry_air() -> FloatArray:
-    x = np.zeros(N_SPECIES)
-    # N2, O2, Ar: ISO 2533:1975 Table 1 (78.084, 20.9476, 0.934 % by volume); CO2 raised from
-    # that table's 0.0314 % to a present-day 400 ppm (common practice); normalised to sum 1.
-    x[INDEX["N2"]] = 0.78084
-    x[INDEX["O2"]] = 0.209476
-    x[INDEX["Ar"]] = 0.00934
-    x[INDEX["CO2"]] = 0.0004
-    x /= x.sum()
-    x.flags.writeable = False
-    return x
-
-
-#: Mole fractions of dry air over SPECIES (ISO 2533 with 400 ppm CO2, normalised).
-DRY_AIR: FloatArray = _dry_air()
 
 
 # --------------------------------------------------------------------------------------------
@@ -160,8 +128,26 @@ def _compact(z: FloatArray, name: str) -> tuple[NDArray[np.intp], FloatArray]:
     return idx, zk
 
 
-def _check_composition(z: FloatArray, name: str) -> FloatArray:
-    """Validated, normalised full composition (..., N_SPECIES)."""
+def check_composition(z: FloatArray, name: str) -> FloatArray:
+    """Return a validated, normalised composition over all species.
+
+    Parameters
+    ----------
+    z : ndarray, shape (..., N_SPECIES)
+        Mole or mass fractions [-]; rows containing NaN pass through.
+    name : str
+        Name of the argument, for the error message.
+
+    Returns
+    -------
+    ndarray, shape (..., N_SPECIES)
+        The fractions, normalised to sum 1 [-].
+
+    Raises
+    ------
+    ModelInputError
+        Wrong last-axis length, negative fractions or a sum off 1 by more than 1e-5.
+    """
     idx, zk = _compact(z, name)
     out = np.zeros(z.shape)
     out[..., idx] = zk
@@ -659,7 +645,7 @@ def residual(T: ArrayLike, p: ArrayLike, mix: Mixture) -> tuple[FloatArray, Floa
     Notes
     -----
     Pressure-explicit truncated virial form fitted to the Lemmon et al. (2000) air equation of
-    state [5]_ (fit in ``tools/gen_thermo_data.py``), with τ = 300 K / T, π = p / 1 MPa::
+    state [2]_ (fit in ``tools/gen_thermo_data.py``), with τ = 300 K / T, π = p / 1 MPa::
 
         Z - 1 = π Σ b_i τ^i + π² Σ c_i τ^i
         (h - h_ig)/(R T) = π Σ i b_i τ^i + (π²/2) Σ i c_i τ^i
@@ -692,129 +678,3 @@ def compressibility(T: ArrayLike, p: ArrayLike) -> FloatArray:
         z1 = kernel.departure(kernel.DEPARTURE_Z, T, p)
     z: FloatArray = 1.0 + z1
     return np.where(bad, np.nan, z) if np.any(bad) else z
-
-
-# --------------------------------------------------------------------------------------------
-# Water vapour and humid air
-# --------------------------------------------------------------------------------------------
-_TC, _PC = 647.096, 22.064e6  # K, Pa: IAPWS-95 critical point
-_WP_A = (-7.85951783, 1.84408259, -11.7866497, 22.6807411, -15.9618719, 1.80122502)
-_TT, _PT = 273.16, 611.657  # K, Pa: triple point (IAPWS 2011)
-_SUB_A = (-0.212144006e2, 0.273203819e2, -0.610598130e1)
-_SUB_B = (0.333333333e-2, 0.120666667e1, 0.170333333e1)
-
-
-def saturation_pressure(T: ArrayLike) -> FloatArray:
-    """Saturation pressure of water [Pa] over liquid (T >= 273.16 K) or ice (below).
-
-    Parameters
-    ----------
-    T : array_like
-        Temperature [K]; NaN outside 50 K .. 647.096 K.
-
-    Notes
-    -----
-    Liquid, Wagner & Pruss (2002) eq. 2.5 [2]_, ϑ = 1 - T/T_c::
-
-        ln(p/p_c) = (T_c/T)(a1 ϑ + a2 ϑ^1.5 + a3 ϑ³ + a4 ϑ^3.5 + a5 ϑ⁴ + a6 ϑ^7.5)
-
-    Ice Ih, IAPWS R14-08(2011) [3]_, θ = T/T_t::
-
-        ln(p/p_t) = θ⁻¹ Σ a_i θ^(b_i)
-    """
-    T = _f(T)
-    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        v = 1.0 - T / _TC
-        a = _WP_A
-        # half-integer powers from one square root (v^1.5 = v sqrt(v), ...)
-        sv = np.sqrt(v)
-        v3 = v * v * v
-        half = a[1] * v + a[3] * v3 + a[5] * (v3 * v3 * v)  # times sqrt(v)
-        half *= sv
-        half += a[0] * v + a[2] * v3 + a[4] * (v3 * v)
-        half *= _TC / T
-        out: FloatArray = np.asarray(_PC * np.exp(half))
-        below = T < _TT
-        if below.any():  # the ice branch only where it is used
-            th = T[below] / _TT
-            ice = sum(ai * th**bi for ai, bi in zip(_SUB_A, _SUB_B, strict=True)) / th
-            out[below] = _PT * np.exp(ice)
-        out = np.where((T >= 50.0) & (T <= _TC), out, np.nan)
-    return out
-
-
-def enhancement_factor(T: ArrayLike, p: ArrayLike) -> FloatArray:
-    """Water-vapour enhancement factor f(T, p) of moist air [-].
-
-    Notes
-    -----
-    CIPM-2007 [4]_: f = 1.00062 + 3.14e-8 p + 5.6e-7 t², p [Pa], t [°C].  Stated for
-    600-1100 hPa and 15-27 °C; used here over the whole ambient range (the factor stays within
-    about 1.003-1.006, small beside RH sensor uncertainty).
-    """
-    t = _f(T) - 273.15
-    out: FloatArray = 1.00062 + 3.14e-8 * _f(p) + 5.6e-7 * t * t
-    return out
-
-
-def humid_air(
-    T: ArrayLike, p: ArrayLike, RH: ArrayLike, dry: ArrayLike = DRY_AIR
-) -> tuple[FloatArray, StatusArray]:
-    """Mole fractions (..., n_species) of humid air from T [K], p [Pa], RH [-].
-
-    Parameters
-    ----------
-    T : array_like
-        Air temperature [K].
-    p : array_like
-        Total (absolute) pressure [Pa].
-    RH : array_like
-        Relative humidity as a fraction 0..1 [-] (not percent).
-    dry : array_like
-        Dry-air mole fractions (..., n_species); default :data:`DRY_AIR`.
-
-    Returns
-    -------
-    x : ndarray (..., n_species)
-        Mole fractions; NaN rows where status has an error bit.
-    status : ndarray of uint32
-        HUMIDITY_SATURATED (warning) where RH >= 1 (values up to 1 + RH_TOLERANCE are capped to
-        1) or the vapour pressure reaches p; INPUT_NONPHYSICAL for RH < 0 or > 1 +
-        RH_TOLERANCE, T <= 0, p <= 0; INPUT_MISSING for NaN.
-
-    Notes
-    -----
-    x_w = RH · f(T, p) · p_sat(T) / p, x = (1 - x_w) x_dry + x_w e_H2O, with p_sat from
-    :func:`saturation_pressure` and f from :func:`enhancement_factor`.
-
-    Raises
-    ------
-    ModelInputError
-        ``dry`` is not a valid composition.
-    """
-    T = _f(T)
-    p = _f(p)
-    RH = _f(RH)
-    xd = _check_composition(_f(dry), "dry")
-    shape = np.broadcast_shapes(T.shape, p.shape, RH.shape, xd.shape[:-1])
-    status = _status_like(shape)
-    Tb, pb, rb = (np.broadcast_to(a, shape) for a in (T, p, RH))
-    miss = np.isnan(Tb) | np.isnan(pb) | np.isnan(rb)
-    with np.errstate(invalid="ignore"):
-        nonphys = ~miss & ((Tb <= 0) | (pb <= 0) | (rb < 0) | (rb > 1 + RH_TOLERANCE))
-        sat = ~miss & ~nonphys & (rb >= 1)
-    status[miss] |= np.uint32(Reason.INPUT_MISSING)
-    status[nonphys] |= np.uint32(Reason.INPUT_NONPHYSICAL)
-    rc = np.minimum(rb, 1.0)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        xw = rc * enhancement_factor(Tb, pb) * saturation_pressure(Tb) / pb
-        boil = xw >= 1.0
-    sat |= boil & (status == 0)
-    status[sat] |= np.uint32(Reason.HUMIDITY_SATURATED)
-    xw = np.minimum(xw, 1.0)
-    x = (1.0 - xw)[..., None] * xd
-    x[..., INDEX["H2O"]] += xw
-    err = (status & ~np.uint32(Reason.HUMIDITY_SATURATED)) != 0
-    if err.any():
-        x[err] = np.nan
-    return x, status

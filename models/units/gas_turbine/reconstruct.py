@@ -6,8 +6,8 @@ Stations: 0 ambient, 1 compressor inlet, 2 compressor discharge, 3 turbine inlet
 Method (``docs/method.md`` has the full derivation and references)
 -------------------------------------------------------------------
 1. Working fluid: humid air from ambient T0, p0, RH
-   (:func:`models.properties.mixtures.saturation_pressure`,
-   :func:`models.properties.mixtures.enhancement_factor`), composition held through the compressor.
+   (:func:`models.properties.humid_air.saturation_pressure`,
+   :func:`models.properties.humid_air.enhancement_factor`), composition held through the compressor.
    Exhaust gas = air + the species change of burnt fuel (``FuelProperties.product_delta``).
 2. Properties: NASA 7-coefficient ideal-gas mixture data (:mod:`models.properties.thermo_data`) plus
    the real-gas departure of :func:`models.properties.mixtures.residual` at every station (the molar
@@ -75,7 +75,7 @@ from models.correction.gas_turbine import (
     curve_correction,
     reference_operating_point,
 )
-from models.properties import mixtures
+from models.properties import humid_air, mixtures
 from models.properties import thermo_data as _td
 from models.properties.fuel import FuelProperties
 from models.properties.kernel import (
@@ -135,23 +135,8 @@ def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
     np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
 
 
-# ============================================================================================
-# Basis fluids: dry air, water minus dry air (and, per fuel, its burnt species change)
-# ============================================================================================
 _MW = np.asarray(_td.MOLAR_MASS, dtype=np.float64)
-_Y_DRY = np.asarray(mixtures.DRY_AIR * _MW / np.sum(mixtures.DRY_AIR * _MW))
-_M_DRY = float(1.0 / np.sum(_Y_DRY / _MW))
-_M_W = float(_MW[INDEX["H2O"]])
-_R_DRY = mixtures.R_UNIVERSAL / _M_DRY
-_R_W = mixtures.R_UNIVERSAL / _M_W
-_TAB_DRY = np.einsum("s,rsk->rk", _Y_DRY, SPECIES_ROWS)  # (2, 17)
-_TAB_WMD = SPECIES_ROWS[:, INDEX["H2O"], :] - _TAB_DRY  # water minus dry air
-_Y_O2_DRY = float(_Y_DRY[INDEX["O2"]])
-
-
-def _air_fluid(y_w: Num) -> Fluid:
-    """Humid air per kg of humid air, water mass fraction y_w."""
-    return Fluid([(_TAB_DRY, 1.0), (_TAB_WMD, y_w)], _R_DRY + y_w * (_R_W - _R_DRY))
+_Y_O2_DRY = float(humid_air.DRY_AIR_MASS_FRACTIONS[INDEX["O2"]])
 
 
 @dataclass(frozen=True)
@@ -292,20 +277,6 @@ _RESULTS = (
 )
 
 
-def _water_mass_fraction(
-    T0: FloatArray, p0: FloatArray, RH: FloatArray, status: StatusArray
-) -> FloatArray:
-    """Water mass fraction of humid air (as ``mixtures.humid_air``, without the full vector)."""
-    sat = RH >= 1.0
-    rc = np.minimum(RH, 1.0)
-    xw = rc * mixtures.enhancement_factor(T0, p0) * mixtures.saturation_pressure(T0) / p0
-    boil = xw >= 1.0
-    _flag(status, sat | boil, Reason.HUMIDITY_SATURATED)
-    xw = np.minimum(xw, 0.999)
-    mw = xw * _M_W
-    return np.asarray(mw / (mw + (1.0 - xw) * _M_DRY))
-
-
 _MODEL_OF = {
     "corrected_power": "corrected_power_model",
     "corrected_heat_rate_lhv_kj_per_kwh": "corrected_heat_rate_lhv_model_kj_per_kwh",
@@ -324,14 +295,14 @@ class _RefAmbient:
 
 def _reference_ambient() -> _RefAmbient:
     y_w = float(
-        _water_mass_fraction(
+        humid_air.water_mass_fraction(
             np.array(REFERENCE_TEMPERATURE),
             np.array(REFERENCE_PRESSURE),
             np.array(REFERENCE_RELATIVE_HUMIDITY),
             np.zeros((), dtype=np.uint32),
         )
     )
-    return _RefAmbient(y_w, _air_fluid(y_w))
+    return _RefAmbient(y_w, humid_air.humid_air_fluid(y_w))
 
 
 def _chunk(
@@ -365,7 +336,7 @@ def _chunk(
     pr = (0.0, mixtures.P_MAX_REAL)
     bT0 = _check(m["T0"], st, rng=Tr)
     bp0 = _check(m["p0"], st, rng=pr, rng_reason=Reason.PRESSURE_OUT_OF_RANGE)
-    bRH = _check(m["RH"], st, lo=-1e-300, hi=1.0 + mixtures.RH_TOLERANCE)
+    bRH = _check(m["RH"], st, lo=-1e-300, hi=1.0 + humid_air.RH_TOLERANCE)
     bT1 = _check(m["T1"], st, rng=Tr)
     bp1 = _check(m["p1"], st, rng=pr, rng_reason=Reason.PRESSURE_OUT_OF_RANGE)
     bT2 = _check(m["T2"], st, rng=Tr)
@@ -408,8 +379,8 @@ def _chunk(
     g_fp = bmf | bP | bfuel  # heat rate
 
     # ---- working fluid --------------------------------------------------------------------
-    y_w = _water_mass_fraction(T0, p0, RH, st)
-    air = _air_fluid(y_w)
+    y_w = humid_air.water_mass_fraction(T0, p0, RH, st)
+    air = humid_air.humid_air_fluid(y_w)
     R_a = air.R
 
     # ---- compressor -----------------------------------------------------------------------
@@ -1052,7 +1023,7 @@ def simulate(
     status = np.zeros(shape, dtype=np.uint32)
     _check(T0, status, rng=(mixtures.T_MIN, mixtures.T_MAX))
     _check(p0, status)
-    _check(RH, status, lo=-1e-300, hi=1.0 + mixtures.RH_TOLERANCE)
+    _check(RH, status, lo=-1e-300, hi=1.0 + humid_air.RH_TOLERANCE)
     PR, ma = a(pressure_ratio), a(air_mass_flow)
     _check(ma, status)
     _flag(status, ~(PR > 1.0), Reason.PRESSURE_RATIO_INVALID)
@@ -1066,10 +1037,10 @@ def simulate(
     p1 = p0 * (1.0 - a(inlet_pressure_loss))
     p4 = p0 * (1.0 + a(exhaust_pressure_loss))
     with np.errstate(all="ignore"):
-        y_w = _water_mass_fraction(T0, p0, RH, status)
+        y_w = humid_air.water_mass_fraction(T0, p0, RH, status)
         res = _forward_core(
-            air=_air_fluid(y_w), y_w=y_w, T1=T0, p1=p1, p2=PR * p1, p4=p4, eta_c=eta_c, T3=T3,
-            eta_t=eta_t, ma=ma, hf=_fuel_enthalpy(fuel, Tf), lhv=fd.lhv, fd=fd,
+            air=humid_air.humid_air_fluid(y_w), y_w=y_w, T1=T0, p1=p1, p2=PR * p1, p4=p4,
+            eta_c=eta_c, T3=T3, eta_t=eta_t, ma=ma, hf=_fuel_enthalpy(fuel, Tf), lhv=fd.lhv, fd=fd,
             eta_b=a(combustion_efficiency), closs=a(casing_heat_loss_fraction),
             dp=a(combustor_pressure_loss), eta_gen=a(generator_efficiency),
             pmech=a(mechanical_loss), temperatures=True, status=status,
@@ -1109,7 +1080,7 @@ _MEASUREMENTS: tuple[FieldSpec, ...] = (
     _m("ambient_pressure", "Pa", "p0, station 0: barometric pressure (absolute)", 5.0e4, 1.2e5),
     _m("ambient_relative_humidity", "1",
        "RH, station 0: fraction 0..1 (over water; over ice below 273.16 K)",
-       0.0, 1.0 + mixtures.RH_TOLERANCE),
+       0.0, 1.0 + humid_air.RH_TOLERANCE),
     _m("compressor_inlet_temperature", "K", "T1, station 1: after the inlet filter and duct",
        200.0, 350.0),
     _m("compressor_inlet_pressure", "Pa", "p1, station 1 (absolute)", 5.0e4, 1.2e5),

@@ -49,7 +49,7 @@ from models.correction.iso3046 import (
     spark_ignition_correction_factor,
 )
 from models.cycles import reciprocating as cyc
-from models.properties import mixtures
+from models.properties import humid_air, mixtures
 from models.properties.fuel import FuelProperties
 from models.status import WARNING_REASONS, ModelInputError, Reason
 
@@ -106,7 +106,7 @@ def _arr(v: ArrayLike, shape: tuple[int, ...]) -> FloatArray:
 
 
 def _air(T0: FloatArray, p0: FloatArray, rh: FloatArray) -> tuple[mixtures.Mixture, StatusArray]:
-    x, st = mixtures.humid_air(T0, p0, rh)
+    x, st = humid_air.humid_air(T0, p0, rh)
     return mixtures.Mixture.from_mole_fractions(x), st
 
 
