@@ -9,7 +9,7 @@ The command
 2. resamples those to ``--snapshots`` snapshots with small sensor jitter (so the batch is not
    one point repeated), seeded by ``--seed``;
 3. times the vectorised reconstruction (``GAS_TURBINE.compute`` of
-   ``models.units.gas_turbine.reconstruct``) on the whole batch in a child process pinned to one CPU
+   ``models.units.gas_turbine.schema``) on the whole batch in a child process pinned to one CPU
    with ``OMP_NUM_THREADS``, ``OPENBLAS_NUM_THREADS`` and ``MKL_NUM_THREADS`` set to 1 (best of
    ``--repeats``);
 4. times the per-snapshot Cantera reconstruction (``reconstruct_one``: the same equations, one
@@ -244,7 +244,7 @@ def make_snapshots(
 
 def _compute(measurements: Mapping[str, np.ndarray]) -> Any:
     from models.properties.fuel import gas_fuel
-    from models.units.gas_turbine.reconstruct import GAS_TURBINE
+    from models.units.gas_turbine.schema import GAS_TURBINE
 
     fuel = gas_fuel(dict(BENCH_FUEL))
     return GAS_TURBINE.compute(measurements, fuel, dict(BENCH_PARAMETERS))

@@ -3,7 +3,7 @@
 The demo needs a plant that behaves like one: loads change, the air warms up by day and cools
 at night, compressors foul and lose efficiency and flow capacity, one unit is washed offline
 and recovers, sensors are noisy and now and then send rubbish.  This module builds that plant
-on top of the forward cycle model :func:`models.units.gas_turbine.reconstruct.simulate` (component
+on top of the forward cycle model :func:`models.units.gas_turbine.simulate.simulate` (component
 health and operating point in, sensor values out) and turns its SI values into the payloads the
 plant file's tag map expects (topics, units of measure, payload forms).
 
@@ -556,7 +556,7 @@ def operating_point(
     Returns
     -------
     dict
-        Keyword arguments for :func:`models.units.gas_turbine.reconstruct.simulate` (air flow,
+        Keyword arguments for :func:`models.units.gas_turbine.simulate.simulate` (air flow,
         pressure ratio, turbine inlet temperature, efficiencies, inlet and exhaust losses as
         fractions).
 
@@ -735,7 +735,7 @@ class PlantSimulator:
 
     def unit_values(self, hours: float) -> dict[str, UnitTruth]:
         """Noise-free sensor values [SI] of every simulated unit at scenario time ``hours``."""
-        from models.units.gas_turbine.reconstruct import simulate
+        from models.units.gas_turbine.simulate import simulate
 
         sc = self.scenario
         amb = {k: float(v) for k, v in ambient_conditions(sc, hours).items()}
@@ -865,7 +865,7 @@ class PlantSimulator:
         return x
 
 
-#: Unit parameters :func:`models.units.gas_turbine.reconstruct.simulate` accepts.
+#: Unit parameters :func:`models.units.gas_turbine.simulate.simulate` accepts.
 _SIM_PARAMETERS = frozenset(
     {
         "generator_efficiency",

@@ -24,7 +24,8 @@ from models.correction.gas_turbine import (
 )
 from models.properties.fuel import gas_fuel
 from models.status import ModelInputError, Reason
-from models.units.gas_turbine.reconstruct import reconstruct, simulate
+from models.units.gas_turbine.reconstruct import reconstruct
+from models.units.gas_turbine.simulate import simulate
 
 FUEL = gas_fuel({"CH4": 0.95, "C2H6": 0.03, "C3H8": 0.005, "N2": 0.01, "CO2": 0.005})
 HEALTH = {

@@ -22,7 +22,9 @@ from models.properties import humid_air, mixtures
 from models.properties.fuel import gas_fuel, liquid_fuel
 from models.status import WARNING_REASONS, Reason
 from models.units.base import UnitType
-from models.units.gas_turbine.reconstruct import GAS_TURBINE, reconstruct, simulate
+from models.units.gas_turbine.reconstruct import reconstruct
+from models.units.gas_turbine.schema import GAS_TURBINE
+from models.units.gas_turbine.simulate import simulate
 from models.units.registry import builtin_unit_types
 
 FUEL = gas_fuel(

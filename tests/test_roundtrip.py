@@ -30,7 +30,7 @@ ct = pytest.importorskip("cantera")
 import cantera_engine as ce  # noqa: E402  (tests/ is on sys.path under pytest)
 
 from models.properties.fuel import gas_fuel  # noqa: E402
-from models.units.gas_turbine.reconstruct import GAS_TURBINE  # noqa: E402
+from models.units.gas_turbine.schema import GAS_TURBINE  # noqa: E402
 
 # Invented fuel analyses for the Kestrel Ridge Energy Park (not from any real site).
 PIPELINE_GAS: Mapping[str, float] = {

@@ -6,7 +6,7 @@ Two methods, always labelled in the results (``correction_method``):
     Model-based.  The measured component health (compressor and turbine isentropic
     efficiencies, combustor pressure loss, combustion efficiency, inlet and exhaust pressure
     ratios, losses) is held, a control law fixes the operating point, and the cycle is run
-    forward twice with :func:`models.units.gas_turbine.reconstruct.simulate`: at the measured
+    forward twice with :func:`models.units.gas_turbine.simulate.simulate`: at the measured
     ambient and at the reference ambient.  Then::
 
         P_corr  = P_meas  * P_model(ref) / P_model(meas)                    (1)

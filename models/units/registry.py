@@ -11,7 +11,7 @@ from collections.abc import Mapping
 from types import MappingProxyType
 
 from models.units.base import UnitType
-from models.units.gas_turbine.reconstruct import GAS_TURBINE
+from models.units.gas_turbine.schema import GAS_TURBINE
 
 __all__ = ["builtin_unit_types"]
 
