@@ -31,7 +31,7 @@ from numpy.typing import ArrayLike, NDArray
 from models.properties import mixtures
 from models.properties.fuel import FuelProperties
 from models.properties.species import INDEX
-from models.status import Reason
+from models.status import Reason, flag
 
 __all__ = [
     "CombustorState",
@@ -43,10 +43,6 @@ __all__ = [
 
 FloatArray = NDArray[np.float64]
 StatusArray = NDArray[np.uint32]
-
-
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
 
 
 def stoichiometric_fuel_air_ratio(air: mixtures.Mixture, fuel: FuelProperties) -> FloatArray:
@@ -156,7 +152,7 @@ def combustor(
     status = np.zeros(shape, dtype=np.uint32)
     f_st = stoichiometric_fuel_air_ratio(air, fuel)
     infeasible = ~((f > 0) & (f < f_st))
-    _flag(status, np.broadcast_to(infeasible, shape), Reason.ENERGY_BALANCE_INFEASIBLE)
+    flag(status, np.broadcast_to(infeasible, shape), Reason.ENERGY_BALANCE_INFEASIBLE)
     g = exhaust_mixture(air, fuel, f)
     p3 = turbine_inlet_pressure(p2a, combustor_pressure_loss)
     q = np.asarray(fuel_enthalpy) + (

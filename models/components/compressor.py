@@ -31,7 +31,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from models.properties import mixtures
-from models.status import Reason
+from models.status import Reason, flag
 
 __all__ = [
     "COMPRESSOR_EFFICIENCY_BAND",
@@ -46,10 +46,6 @@ StatusArray = NDArray[np.uint32]
 #: Plausible compressor isentropic efficiency band [1] of large axial compressors in service
 #: (common practice); outside it ``EFFICIENCY_IMPLAUSIBLE`` is set as a warning.
 COMPRESSOR_EFFICIENCY_BAND: tuple[float, float] = (0.80, 0.92)
-
-
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
 
 
 @dataclass(frozen=True)
@@ -82,17 +78,17 @@ def _check_states(T1: FloatArray, p1: FloatArray, T2: FloatArray, p2: FloatArray
     shape = np.broadcast(T1, p1, T2, p2).shape
     status = np.zeros(shape, dtype=np.uint32)
     missing = np.isnan(T1) | np.isnan(p1) | np.isnan(T2) | np.isnan(p2)
-    _flag(status, missing, Reason.INPUT_MISSING)
+    flag(status, missing, Reason.INPUT_MISSING)
     nonphys = ~missing & ~((T1 > 0.0) & (T2 > 0.0) & (p1 > 0.0) & (p2 > 0.0))
-    _flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
+    flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
     ok = ~missing & ~nonphys
-    _flag(
+    flag(
         status,
         ok & ~((T1 >= mixtures.T_MIN) & (T2 <= mixtures.T_MAX)),
         Reason.TEMPERATURE_OUT_OF_RANGE,
     )
-    _flag(status, ok & ~(T2 > T1), Reason.DISCHARGE_NOT_HOTTER)
-    _flag(status, ok & ~(p2 > p1), Reason.PRESSURE_RATIO_INVALID)
+    flag(status, ok & ~(T2 > T1), Reason.DISCHARGE_NOT_HOTTER)
+    flag(status, ok & ~(p2 > p1), Reason.PRESSURE_RATIO_INVALID)
     return status
 
 
@@ -153,9 +149,9 @@ def compressor(
     w = h2 - h1
     eta = (h2s - h1) / w
     eta_p = mix.R * np.log(p2c / p1c) / (mix.s0(T2c) - mix.s0(T1c))
-    _flag(status, (status == 0) & ~((eta > 0.0) & (eta <= 1.0)), Reason.EFFICIENCY_OUT_OF_RANGE)
+    flag(status, (status == 0) & ~((eta > 0.0) & (eta <= 1.0)), Reason.EFFICIENCY_OUT_OF_RANGE)
     lo, hi = COMPRESSOR_EFFICIENCY_BAND
-    _flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
+    flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
     err = (status & ~np.uint32(Reason.EFFICIENCY_IMPLAUSIBLE)) != 0
 
     def nan(a: FloatArray) -> FloatArray:

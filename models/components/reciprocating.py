@@ -58,7 +58,7 @@ from models.cycles.reciprocating import (
 from models.properties import humid_air, mixtures
 from models.properties.fuel import FuelProperties
 from models.properties.species import INDEX, SPECIES
-from models.status import ModelInputError, Reason
+from models.status import ModelInputError, Reason, flag
 
 __all__ = [
     "BRAKE_EFFICIENCY_BAND",
@@ -101,10 +101,6 @@ BRAKE_EFFICIENCY_BAND: tuple[float, float] = (0.20, 0.52)
 TURBOCHARGER_EFFICIENCY_BAND: tuple[float, float] = (0.60, 0.88)
 
 
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
-
-
 Check = Literal["pos", "nonneg", "frac", "any"]
 
 
@@ -130,9 +126,9 @@ def _inputs(
                 ok = (b > 0.0) & (b <= 1.0)
             else:
                 ok = np.isfinite(b)
-        _flag(status, miss, Reason.INPUT_MISSING)
+        flag(status, miss, Reason.INPUT_MISSING)
         reason = Reason.EFFICIENCY_OUT_OF_RANGE if kind == "frac" else Reason.INPUT_NONPHYSICAL
-        _flag(status, ~miss & ~ok, reason)
+        flag(status, ~miss & ~ok, reason)
         out.append(np.where(miss | ~ok, 1.0, b))
     return out, status
 
@@ -383,9 +379,9 @@ def brake_performance(
     status = np.asarray(status | st, dtype=np.uint32)
     Pb = np.where(np.isnan(Pb), 1.0, Pb)
     eta = Pb / (mf * lhv)
-    _flag(status, (status == 0) & (eta > 1.0), Reason.EFFICIENCY_OUT_OF_RANGE)
+    flag(status, (status == 0) & (eta > 1.0), Reason.EFFICIENCY_OUT_OF_RANGE)
     lo, hi = BRAKE_EFFICIENCY_BAND
-    _flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
+    flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
     n_cyc = geometry.cycles_per_second(w)
 
     def out(a: ArrayLike) -> FloatArray:
@@ -434,7 +430,7 @@ def relative_efficiency(
     """
     (eta, ideal), status = _inputs((efficiency, "frac"), (ideal_efficiency, "frac"))
     ratio = eta / ideal
-    _flag(status, (status == 0) & (ratio > 1.0), Reason.EFFICIENCY_OUT_OF_RANGE)
+    flag(status, (status == 0) & (ratio > 1.0), Reason.EFFICIENCY_OUT_OF_RANGE)
     return _nan(ratio, status), status
 
 
@@ -523,7 +519,7 @@ def exhaust_oxygen(
     air = dry_air() if air is None else air
     c, a, b, _ = _o2_coefficients(fuel, air, basis)
     (lam,), status = _inputs((excess_air_ratio, "pos"), shape=np.broadcast(c, a).shape)
-    _flag(status, (status == 0) & (lam < 1.0), Reason.INPUT_NONPHYSICAL)
+    flag(status, (status == 0) & (lam < 1.0), Reason.INPUT_NONPHYSICAL)
     x = (lam - 1.0) * c / (lam * a + b)
     return _nan(x, status), status
 
@@ -576,7 +572,7 @@ def excess_air_ratio_from_oxygen(
     c, a, b, _ = _o2_coefficients(fuel, air, basis)
     (x,), status = _inputs((oxygen, "any"), shape=np.broadcast(c, a).shape)
     x_air = c / a
-    _flag(status, (status == 0) & ~((x >= 0.0) & (x < x_air)), Reason.INPUT_NONPHYSICAL)
+    flag(status, (status == 0) & ~((x >= 0.0) & (x < x_air)), Reason.INPUT_NONPHYSICAL)
     with np.errstate(divide="ignore", invalid="ignore"):
         lam = (c + x * b) / (c - x * a)
     return _nan(lam, status), status
@@ -654,12 +650,12 @@ def charge_density(
     """
     mix = dry_air() if fluid is None else fluid
     (T, p), status = _inputs((temperature, "pos"), (pressure, "pos"), shape=mix.shape)
-    _flag(
+    flag(
         status,
         (status == 0) & ((T < mixtures.T_MIN) | (T > mixtures.T_MAX)),
         Reason.TEMPERATURE_OUT_OF_RANGE,
     )
-    _flag(status, (status == 0) & (p > mixtures.P_MAX_REAL), Reason.PRESSURE_OUT_OF_RANGE)
+    flag(status, (status == 0) & (p > mixtures.P_MAX_REAL), Reason.PRESSURE_OUT_OF_RANGE)
     Z = mixtures.compressibility(np.where(status == 0, T, 300.0), np.where(status == 0, p, 1e5))
     rho = p / ((Z if real_gas else 1.0) * mix.R * T)
     return _nan(rho, status), status
@@ -749,7 +745,7 @@ def turbocharger_compressor(
     eta = st.isentropic_efficiency
     lo, hi = TURBOCHARGER_EFFICIENCY_BAND
     with np.errstate(invalid="ignore"):
-        _flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
+        flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
     return replace(st, status=status)
 
 
@@ -781,9 +777,9 @@ def exhaust_heat(
         (temperature_out, "pos"),
         shape=exhaust.shape,
     )
-    _flag(status, (status == 0) & (t_out > t_in), Reason.INPUT_NONPHYSICAL)
+    flag(status, (status == 0) & (t_out > t_in), Reason.INPUT_NONPHYSICAL)
     q = m * (exhaust.h(t_in) - exhaust.h(t_out))
-    _flag(status, (status == 0) & np.isnan(q), Reason.TEMPERATURE_OUT_OF_RANGE)
+    flag(status, (status == 0) & np.isnan(q), Reason.TEMPERATURE_OUT_OF_RANGE)
     return _nan(q, status), status
 
 
@@ -870,7 +866,7 @@ array_like, optional
         q = q + h
     eta_q = q / fuel_heat
     total = eta_el + eta_q
-    _flag(status, (status == 0) & (total > 1.0), Reason.EFFICIENCY_OUT_OF_RANGE)
+    flag(status, (status == 0) & (total > 1.0), Reason.EFFICIENCY_OUT_OF_RANGE)
     return ChpEfficiency(
         thermal_efficiency=_nan(eta_el, status),
         heat_recovery_efficiency=_nan(eta_q, status),

@@ -26,7 +26,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from models.properties import mixtures
-from models.status import Reason
+from models.status import Reason, flag
 
 __all__ = ["TURBINE_EFFICIENCY_BAND", "TurbineState", "turbine", "turbine_exit_temperature"]
 
@@ -36,10 +36,6 @@ StatusArray = NDArray[np.uint32]
 #: Plausible turbine isentropic efficiency on the heat-balance inlet temperature [1]
 #: (common practice); outside it ``EFFICIENCY_IMPLAUSIBLE`` is set as a warning.
 TURBINE_EFFICIENCY_BAND: tuple[float, float] = (0.80, 0.95)
-
-
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
 
 
 @dataclass(frozen=True)
@@ -101,11 +97,11 @@ def turbine(
     shape = np.broadcast(T3a, p3a, T4a, p4a, exhaust.M).shape
     status = np.zeros(shape, dtype=np.uint32)
     miss = np.isnan(T3a) | np.isnan(p3a) | np.isnan(T4a) | np.isnan(p4a)
-    _flag(status, np.broadcast_to(miss, shape), Reason.INPUT_MISSING)
+    flag(status, np.broadcast_to(miss, shape), Reason.INPUT_MISSING)
     nonphys = ~miss & ~((T3a > 0) & (T4a > 0) & (p3a > 0) & (p4a > 0))
-    _flag(status, np.broadcast_to(nonphys, shape), Reason.INPUT_NONPHYSICAL)
+    flag(status, np.broadcast_to(nonphys, shape), Reason.INPUT_NONPHYSICAL)
     ok = ~miss & ~nonphys
-    _flag(status, np.broadcast_to(ok & ~(p3a > p4a), shape), Reason.PRESSURE_RATIO_INVALID)
+    flag(status, np.broadcast_to(ok & ~(p3a > p4a), shape), Reason.PRESSURE_RATIO_INVALID)
     bad = status != 0
     T3c = np.where(bad, 1400.0, T3a)
     p3c = np.where(bad, 1.4e6, p3a)
@@ -117,9 +113,9 @@ def turbine(
     h4 = exhaust.h_real(T4c, p4c)
     h4s = exhaust.h_real(T4s, p4c)
     eta = (h3v - h4) / (h3v - h4s)
-    _flag(status, (status == 0) & ~((eta > 0) & (eta <= 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
+    flag(status, (status == 0) & ~((eta > 0) & (eta <= 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
     lo, hi = TURBINE_EFFICIENCY_BAND
-    _flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
+    flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
     err = (status & ~np.uint32(Reason.EFFICIENCY_IMPLAUSIBLE)) != 0
 
     def nan(a: FloatArray) -> FloatArray:

@@ -60,7 +60,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models.status import ModelInputError, Reason
+from models.status import ModelInputError, Reason, flag
 
 __all__ = [
     "REFERENCE_PRESSURE",
@@ -81,10 +81,6 @@ REFERENCE_TEMPERATURE: float = 288.15
 REFERENCE_PRESSURE: float = 101325.0
 #: Reference ambient relative humidity [1] (ISO 2314 / ISO 3977-2).
 REFERENCE_RELATIVE_HUMIDITY: float = 0.60
-
-
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    status |= mask.astype(np.uint32) * np.uint32(reason)
 
 
 @dataclass(frozen=True)
@@ -246,7 +242,7 @@ def curve_correction(
     P_corr = P / alpha
     HR_corr = HR / beta
     unavailable = out_a | out_b | np.isnan(P_corr) | np.isnan(HR_corr)
-    _flag(status, unavailable, Reason.CORRECTION_UNAVAILABLE)
+    flag(status, unavailable, Reason.CORRECTION_UNAVAILABLE)
     bad = status != 0
     return np.where(bad, np.nan, P_corr), np.where(bad, np.nan, HR_corr), status
 

@@ -63,7 +63,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from models.properties import humid_air
-from models.status import Reason
+from models.status import Reason, flag
 
 __all__ = [
     "FRICTION_SHARE",
@@ -89,10 +89,6 @@ FRICTION_SHARE: float = 0.7
 _P_RANGE = (60.0e3, 110.0e3)  # Pa
 _T_RANGE = (243.0, 333.0)  # K
 _TC_RANGE = (273.0, 333.0)  # K
-
-
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
 
 
 @dataclass(frozen=True)
@@ -239,9 +235,9 @@ def indicated_power_ratio(
                 | (uses_tc & ((tb < _TC_RANGE[0]) | (tb > _TC_RANGE[1])))
             )
         )
-    _flag(status, miss, Reason.INPUT_MISSING)
-    _flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
-    _flag(status, outside, Reason.CORRECTION_UNAVAILABLE)
+    flag(status, miss, Reason.INPUT_MISSING)
+    flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
+    flag(status, outside, Reason.CORRECTION_UNAVAILABLE)
     ok = status == 0
     ps = humid_air.saturation_pressure(np.where(ok, Tb, 298.0))
     ps_r = float(humid_air.saturation_pressure(reference.temperature))
@@ -252,7 +248,7 @@ def indicated_power_ratio(
         k = (dry_x / dry_r) ** m * (reference.temperature / np.where(ok, Tb, 298.0)) ** n
         if uses_tc:
             k = k * (reference.charge_air_coolant_temperature / np.where(ok, tb, 298.0)) ** s
-    _flag(status, ok & ~(k > 0), Reason.CORRECTION_UNAVAILABLE)
+    flag(status, ok & ~(k > 0), Reason.CORRECTION_UNAVAILABLE)
     return np.where(status != 0, np.nan, k), status
 
 
@@ -294,12 +290,12 @@ def power_adjustment_factor(
     shape = np.broadcast_shapes(k.shape, eta.shape)
     status = np.zeros(shape, dtype=np.uint32)
     kb, eb = np.broadcast_to(k, shape), np.broadcast_to(eta, shape)
-    _flag(status, np.isnan(kb) | np.isnan(eb), Reason.INPUT_MISSING)
+    flag(status, np.isnan(kb) | np.isnan(eb), Reason.INPUT_MISSING)
     with np.errstate(invalid="ignore", divide="ignore"):
-        _flag(status, ~np.isnan(eb) & ~((eb > 0) & (eb <= 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
-        _flag(status, ~np.isnan(kb) & ~(kb > 0), Reason.CORRECTION_UNAVAILABLE)
+        flag(status, ~np.isnan(eb) & ~((eb > 0) & (eb <= 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
+        flag(status, ~np.isnan(kb) & ~(kb > 0), Reason.CORRECTION_UNAVAILABLE)
         alpha = kb - FRICTION_SHARE * (1.0 - kb) * (1.0 / eb - 1.0)
-        _flag(status, (status == 0) & ~(alpha > 0), Reason.CORRECTION_UNAVAILABLE)
+        flag(status, (status == 0) & ~(alpha > 0), Reason.CORRECTION_UNAVAILABLE)
     return np.where(status != 0, np.nan, alpha), status
 
 
@@ -422,10 +418,10 @@ def iso3046_correction(
     shape = np.broadcast_shapes(status.shape, P.shape, b.shape, hr.shape)
     status = np.array(np.broadcast_to(status, shape))
     Pb, bb = np.broadcast_to(P, shape), np.broadcast_to(b, shape)
-    _flag(status, np.isnan(Pb) | np.isnan(bb), Reason.INPUT_MISSING)
+    flag(status, np.isnan(Pb) | np.isnan(bb), Reason.INPUT_MISSING)
     with np.errstate(invalid="ignore"):
-        _flag(status, ~np.isnan(Pb) & ~(Pb > 0), Reason.INPUT_NONPHYSICAL)
-        _flag(status, ~np.isnan(bb) & ~(bb > 0), Reason.INPUT_NONPHYSICAL)
+        flag(status, ~np.isnan(Pb) & ~(Pb > 0), Reason.INPUT_NONPHYSICAL)
+        flag(status, ~np.isnan(bb) & ~(bb > 0), Reason.INPUT_NONPHYSICAL)
     bad = status != 0
 
     def out(a: ArrayLike) -> FloatArray:
@@ -502,8 +498,8 @@ def spark_ignition_correction_factor(
     miss = np.isnan(pb) | np.isnan(Tb) | np.isnan(rb)
     with np.errstate(invalid="ignore"):
         nonphys = ~miss & ((pb <= 0) | (Tb <= 0) | (rb < 0) | (rb > 1))
-    _flag(status, miss, Reason.INPUT_MISSING)
-    _flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
+    flag(status, miss, Reason.INPUT_MISSING)
+    flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
     ok = status == 0
     Ts = np.where(ok, Tb, 298.0)
     pd = np.where(ok, pb, 1e5) - np.where(ok, rb, 0.0) * humid_air.saturation_pressure(Ts)
@@ -517,5 +513,5 @@ def spark_ignition_correction_factor(
             | (pd < _SI_PD_RANGE[0])
             | (pd > _SI_PD_RANGE[1])
         )
-    _flag(status, outside, Reason.CORRECTION_UNAVAILABLE)
+    flag(status, outside, Reason.CORRECTION_UNAVAILABLE)
     return np.where(status != 0, np.nan, alpha), status

@@ -31,7 +31,7 @@ from numpy.typing import ArrayLike, NDArray
 from models.components.combustor import exhaust_mixture
 from models.properties import mixtures
 from models.properties.fuel import FuelProperties
-from models.status import Reason
+from models.status import Reason, flag
 
 __all__ = [
     "BraytonCycle",
@@ -42,10 +42,6 @@ __all__ = [
 
 FloatArray = NDArray[np.float64]
 StatusArray = NDArray[np.uint32]
-
-
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
 
 
 def air_standard_brayton_efficiency(
@@ -77,9 +73,9 @@ def air_standard_brayton_efficiency(
     r = np.asarray(pressure_ratio, dtype=np.float64)
     g = np.asarray(gamma, dtype=np.float64)
     status = np.zeros(np.broadcast(r, g).shape, dtype=np.uint32)
-    _flag(status, np.isnan(r) | np.isnan(g), Reason.INPUT_MISSING)
-    _flag(status, ~np.isnan(r) & ~(r > 1.0), Reason.PRESSURE_RATIO_INVALID)
-    _flag(status, ~np.isnan(g) & ~(g > 1.0), Reason.INPUT_NONPHYSICAL)
+    flag(status, np.isnan(r) | np.isnan(g), Reason.INPUT_MISSING)
+    flag(status, ~np.isnan(r) & ~(r > 1.0), Reason.PRESSURE_RATIO_INVALID)
+    flag(status, ~np.isnan(g) & ~(g > 1.0), Reason.INPUT_NONPHYSICAL)
     with np.errstate(invalid="ignore", divide="ignore"):
         eta = 1.0 - r ** (-(g - 1.0) / g)
     return np.where(status != 0, np.nan, eta), status
@@ -111,9 +107,9 @@ def carnot_efficiency(T_cold: ArrayLike, T_hot: ArrayLike) -> tuple[FloatArray, 
     Tc = np.asarray(T_cold, dtype=np.float64)
     Th = np.asarray(T_hot, dtype=np.float64)
     status = np.zeros(np.broadcast(Tc, Th).shape, dtype=np.uint32)
-    _flag(status, np.isnan(Tc) | np.isnan(Th), Reason.INPUT_MISSING)
-    _flag(status, ~(Tc > 0.0) & ~np.isnan(Tc), Reason.INPUT_NONPHYSICAL)
-    _flag(status, ~(Th > Tc) & ~np.isnan(Tc) & ~np.isnan(Th), Reason.INPUT_NONPHYSICAL)
+    flag(status, np.isnan(Tc) | np.isnan(Th), Reason.INPUT_MISSING)
+    flag(status, ~(Tc > 0.0) & ~np.isnan(Tc), Reason.INPUT_NONPHYSICAL)
+    flag(status, ~(Th > Tc) & ~np.isnan(Tc) & ~np.isnan(Th), Reason.INPUT_NONPHYSICAL)
     with np.errstate(invalid="ignore", divide="ignore"):
         eta = 1.0 - Tc / Th
     return np.where(status != 0, np.nan, eta), status
@@ -226,10 +222,10 @@ def brayton_cycle(
     eta_t = np.asarray(turbine_efficiency, dtype=np.float64)
     shape = np.broadcast(T1a, p1a, r, T3a, eta_c, eta_t, air.M).shape
     status = np.zeros(shape, dtype=np.uint32)
-    _flag(status, np.broadcast_to(~(r > 1.0), shape), Reason.PRESSURE_RATIO_INVALID)
-    _flag(status, np.broadcast_to(~(T3a > T1a) | ~(T1a > 0), shape), Reason.INPUT_NONPHYSICAL)
+    flag(status, np.broadcast_to(~(r > 1.0), shape), Reason.PRESSURE_RATIO_INVALID)
+    flag(status, np.broadcast_to(~(T3a > T1a) | ~(T1a > 0), shape), Reason.INPUT_NONPHYSICAL)
     eff_ok = (eta_c > 0) & (eta_c <= 1) & (eta_t > 0) & (eta_t <= 1)
-    _flag(status, np.broadcast_to(~eff_ok, shape), Reason.EFFICIENCY_OUT_OF_RANGE)
+    flag(status, np.broadcast_to(~eff_ok, shape), Reason.EFFICIENCY_OUT_OF_RANGE)
     p2 = p1a * r
 
     def h(m: mixtures.Mixture, T: FloatArray, p: FloatArray) -> FloatArray:
@@ -254,7 +250,7 @@ def brayton_cycle(
         hpd3 = ((1.0 + f0) * h(g0, T3a, p2) - ha3) / f0
         q = np.asarray(fuel_enthalpy) + fuel.lhv
         f = (ha3 - h2) / (q - hpd3)
-        _flag(status, np.broadcast_to(~(f > 0), shape), Reason.ENERGY_BALANCE_INFEASIBLE)
+        flag(status, np.broadcast_to(~(f > 0), shape), Reason.ENERGY_BALANCE_INFEASIBLE)
         g = exhaust_mixture(air, fuel, np.where(f > 0, f, 0.01))
         h3 = (ha3 + f * hpd3) / (1.0 + f)
         q_in = f * fuel.lhv

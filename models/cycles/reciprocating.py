@@ -66,7 +66,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from models.properties import humid_air, mixtures
-from models.status import ModelInputError, Reason
+from models.status import ModelInputError, Reason, flag
 
 __all__ = [
     "CORNERS",
@@ -95,10 +95,6 @@ _MAX_ITER = 25
 _T_TOL = 1e-9  # K, Newton step at convergence
 
 
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
-
-
 def _f(a: ArrayLike) -> FloatArray:
     return np.asarray(a, dtype=np.float64)
 
@@ -116,8 +112,8 @@ def _ratio_status(
         miss = np.isnan(vb)
         with np.errstate(invalid="ignore"):
             ok = vb > bound if strict else vb >= bound
-        _flag(status, miss, Reason.INPUT_MISSING)
-        _flag(status, ~miss & ~ok, Reason.INPUT_NONPHYSICAL)
+        flag(status, miss, Reason.INPUT_MISSING)
+        flag(status, ~miss & ~ok, Reason.INPUT_NONPHYSICAL)
     return status
 
 
@@ -355,8 +351,8 @@ class _Variable:
             if done.all():
                 break
         oor = pinned & (status == 0)
-        _flag(status, oor, Reason.TEMPERATURE_OUT_OF_RANGE)
-        _flag(status, ~done & ~oor & (status == 0), Reason.NOT_CONVERGED)
+        flag(status, oor, Reason.TEMPERATURE_OUT_OF_RANGE)
+        flag(status, ~done & ~oor & (status == 0), Reason.NOT_CONVERGED)
         return T
 
     def isentropic_v(self, T: FloatArray, ratio: FloatArray, status: StatusArray) -> FloatArray:
@@ -378,7 +374,7 @@ def _check_range(status: StatusArray, *Ts: FloatArray) -> None:
     for T in Ts:
         with np.errstate(invalid="ignore"):
             bad = ~((T >= mixtures.T_MIN) & (T <= mixtures.T_MAX))
-        _flag(status, bad & (status == 0), Reason.TEMPERATURE_OUT_OF_RANGE)
+        flag(status, bad & (status == 0), Reason.TEMPERATURE_OUT_OF_RANGE)
 
 
 # --------------------------------------------------------------------------------------------
@@ -516,8 +512,8 @@ def _cycle(
         miss = np.isnan(vb)
         with np.errstate(invalid="ignore"):
             ok = vb > bound if strict else vb >= bound
-        _flag(status, miss, Reason.INPUT_MISSING)
-        _flag(status, ~miss & ~ok, Reason.INPUT_NONPHYSICAL)
+        flag(status, miss, Reason.INPUT_MISSING)
+        flag(status, ~miss & ~ok, Reason.INPUT_NONPHYSICAL)
         safe.append(np.where(miss | ~ok, fill, vb))
     T1s, p1s, rs, als, rcs, qs, pms = safe[:7]
     if fluid is None:
@@ -550,7 +546,7 @@ def _cycle(
                     T_peak = T2 * (pms / p2)
                 below = pms < p2  # peak below compression end: a Diesel cycle
                 above = T_peak > T_cv  # the heat cannot reach the peak: an Otto cycle
-                _flag(status, (below | above) & (status == 0), Reason.PEAK_PRESSURE_CLIPPED)
+                flag(status, (below | above) & (status == 0), Reason.PEAK_PRESSURE_CLIPPED)
                 T3a = np.where(below, T2, np.where(above, T_cv, T_peak))
             q_rest = np.maximum(qs - (props.u(T3a) - u2), 0.0)
             T3b = props.T_from_h(props.h(T3a) + q_rest, T3a, status)

@@ -51,7 +51,7 @@ from models.correction.iso3046 import (
 from models.cycles import reciprocating as cyc
 from models.properties import humid_air, mixtures
 from models.properties.fuel import FuelProperties
-from models.status import WARNING_REASONS, ModelInputError, Reason
+from models.status import WARNING_REASONS, ModelInputError, Reason, flag
 
 __all__ = [
     "MEASUREMENTS_OPTIONAL",
@@ -95,10 +95,6 @@ MEASUREMENTS_OPTIONAL: tuple[str, ...] = (
 )
 
 _ERR = ~np.uint32(WARNING_REASONS)
-
-
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
 
 
 def _arr(v: ArrayLike, shape: tuple[int, ...]) -> FloatArray:
@@ -246,9 +242,9 @@ def simulate_engine(
     Pb, st = generator.shaft_power(Pg, generator_efficiency, mechanical_loss)
     status |= st
     with np.errstate(invalid="ignore"):
-        _flag(status, ~((eta_b > 0) & (eta_b < 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
-        _flag(status, ~((eta_c > 0) & (eta_c <= 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
-        _flag(status, ~(lam >= 1) | ~(eta_v > 0) | ~(w > 0) | ~(Tr > 0), Reason.INPUT_NONPHYSICAL)
+        flag(status, ~((eta_b > 0) & (eta_b < 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
+        flag(status, ~((eta_c > 0) & (eta_c <= 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
+        flag(status, ~(lam >= 1) | ~(eta_v > 0) | ~(w > 0) | ~(Tr > 0), Reason.INPUT_NONPHYSICAL)
     m_f = Pb / (eta_b * lhv)
     eta_comb = np.asarray(combustion_efficiency, dtype=np.float64)
     m_a = lam * _stoich_air(air, fuel) * m_f
@@ -273,7 +269,7 @@ def simulate_engine(
     h_g = (m_a * air.h(T0) + m_f * (h_f + eta_comb * lhv) - Pb - Q_jw - Q_lo - Q_cac - Q_rad) / m_g
     T_exh, st = g.T_from_h(h_g, T_guess=np.full(shape, 700.0))
     status |= st
-    _flag(status, (status == 0) & ~(T_exh > T0), Reason.ENERGY_BALANCE_INFEASIBLE)
+    flag(status, (status == 0) & ~(T_exh > T0), Reason.ENERGY_BALANCE_INFEASIBLE)
     x_dry, st = rc.exhaust_oxygen(lam, fuel, air, "dry")
     status |= st
     x_wet, st = rc.exhaust_oxygen(lam, fuel, air, "wet")
