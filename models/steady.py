@@ -160,7 +160,7 @@ class RStatisticState:
 
 
 def update(state: RStatisticState, x_new: ArrayLike) -> tuple[RStatisticState, FloatArray]:
-    """Advance the R-statistic filters by one sample per series.
+    r"""Advance the R-statistic filters by one sample per series.
 
     Parameters
     ----------
@@ -181,26 +181,26 @@ def update(state: RStatisticState, x_new: ArrayLike) -> tuple[RStatisticState, F
 
     Notes
     -----
-    With sample :math:`X_i` and filter factors :math:`\\lambda_1, \\lambda_2, \\lambda_3`
+    With sample :math:`X_i` and filter factors :math:`\lambda_1, \lambda_2, \lambda_3`
     (Cao & Rhinehart 1995, Eqs. for the filtered mean and the two filtered variances):
 
     .. math::
 
-        \\nu^2_{f,i} &= \\lambda_2 (X_i - X_{f,i-1})^2 + (1-\\lambda_2)\\,\\nu^2_{f,i-1} \\\\
-        X_{f,i} &= \\lambda_1 X_i + (1-\\lambda_1) X_{f,i-1} \\\\
-        \\delta^2_{f,i} &= \\lambda_3 (X_i - X_{i-1})^2 + (1-\\lambda_3)\\,\\delta^2_{f,i-1} \\\\
-        R_i &= (2 - \\lambda_1)\\,\\nu^2_{f,i} / \\delta^2_{f,i}
+        \nu^2_{f,i} &= \lambda_2 (X_i - X_{f,i-1})^2 + (1-\lambda_2)\,\nu^2_{f,i-1} \\
+        X_{f,i} &= \lambda_1 X_i + (1-\lambda_1) X_{f,i-1} \\
+        \delta^2_{f,i} &= \lambda_3 (X_i - X_{i-1})^2 + (1-\lambda_3)\,\delta^2_{f,i-1} \\
+        R_i &= (2 - \lambda_1)\,\nu^2_{f,i} / \delta^2_{f,i}
 
     The first finite sample sets :math:`X_{f,0} = X_0` and starts both variance filters at
-    zero.  For independent noise of variance :math:`\\sigma^2` about a constant mean,
-    :math:`E[(X_i - X_{f,i-1})^2] = 2\\sigma^2/(2-\\lambda_1)` and
-    :math:`E[(X_i - X_{i-1})^2] = 2\\sigma^2`, so R is near 1 at steady state; a trend or a
+    zero.  For independent noise of variance :math:`\sigma^2` about a constant mean,
+    :math:`E[(X_i - X_{f,i-1})^2] = 2\sigma^2/(2-\lambda_1)` and
+    :math:`E[(X_i - X_{i-1})^2] = 2\sigma^2`, so R is near 1 at steady state; a trend or a
     step inflates the deviation from the lagging filtered mean far more than the successive
     difference, so R rises well above 1.
 
-    On a ramp of s per sample the filtered mean lags by :math:`s(1-\\lambda_1)/\\lambda_1`,
-    so :math:`E[\\nu^2_f] = 2\\sigma^2/(2-\\lambda_1) + (s/\\lambda_1)^2` and
-    :math:`E[\\delta^2_f] = 2\\sigma^2 + s^2`: with the default factors a drift of
+    On a ramp of s per sample the filtered mean lags by :math:`s(1-\lambda_1)/\lambda_1`,
+    so :math:`E[\nu^2_f] = 2\sigma^2/(2-\lambda_1) + (s/\lambda_1)^2` and
+    :math:`E[\delta^2_f] = 2\sigma^2 + s^2`: with the default factors a drift of
     0.1 σ per sample lifts R only to about 1.2, 0.3 σ to about 2.9.  Slow drifts are
     caught only if the tick is long enough for the drift per sample to approach the noise.
 
@@ -447,7 +447,7 @@ def window_stability(
     axis: int = -1,
     min_valid: int | None = None,
 ) -> WindowStability:
-    """Trailing-window standard-deviation test against per-signal limits.
+    r"""Trailing-window standard-deviation test against per-signal limits.
 
     Parameters
     ----------
@@ -474,7 +474,7 @@ def window_stability(
 
     Notes
     -----
-    :math:`s_i = \\sqrt{\\sum (x_k - \\bar x)^2 / (n - 1)}` over the finite samples of the
+    :math:`s_i = \sqrt{\sum (x_k - \bar x)^2 / (n - 1)}` over the finite samples of the
     window, from running sums of the signal less its median (so long records keep their
     precision), O(N) in time and memory.  Limiting the fluctuation of the load, the inlet
     temperature and the fuel flow during a test run is common practice in acceptance-test

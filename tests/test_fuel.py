@@ -464,10 +464,3 @@ def test_stoichiometric_air_with_cycle_dry_air() -> None:
     f = gas_fuel(EX1)
     y = np.asarray(humid_air.DRY_AIR_MASS_FRACTIONS)
     assert stoichiometric_air_ratio(f, y) == pytest.approx(f.stoichiometric_air, rel=1e-3)
-
-
-def test_docstring_examples_run() -> None:
-    import doctest
-
-    result = doctest.testmod(fuel, optionflags=doctest.NORMALIZE_WHITESPACE)
-    assert result.attempted >= 4 and result.failed == 0

@@ -10,7 +10,6 @@ units KR-GE1 (4.4 MW gas-engine CHP block) and KR-DG1 (2 MW black-start Diesel).
 
 from __future__ import annotations
 
-import doctest
 import functools
 import math
 
@@ -431,8 +430,3 @@ def test_cutoff_ratio_estimate() -> None:
             charge_mass_flow=ma,
             lower_heating_value=lhv,
         )
-
-
-def test_docstring_examples_run() -> None:
-    result = doctest.testmod(rc, optionflags=doctest.NORMALIZE_WHITESPACE)
-    assert result.attempted >= 15 and result.failed == 0

@@ -355,12 +355,3 @@ def test_misuse_raises() -> None:
         reconstruct_engine(meas, KR_GE1, NG, cycle="otto", correction="iso3046")
     with pytest.raises(ModelInputError):
         reconstruct_engine(meas, KR_DG1, GAS_OIL, cycle="diesel", premixed=True)
-
-
-def test_docstring_examples_run() -> None:
-    import doctest
-
-    from models.units.reciprocating import engine
-
-    result = doctest.testmod(engine, optionflags=doctest.NORMALIZE_WHITESPACE)
-    assert result.attempted >= 5 and result.failed == 0

@@ -1,5 +1,6 @@
-"""Compressor: isentropic and polytropic efficiency, specific work and power from measured
-inlet and discharge states (station 1 → 2).
+"""Compressor: isentropic and polytropic efficiency, specific work and power (station 1 → 2).
+
+From the measured inlet and discharge states.
 
 Working fluid: humid air, composition held through the machine.  Enthalpy and entropy are the
 ideal-gas mixture values of :mod:`models.properties.mixtures` plus the real-gas departure

@@ -90,7 +90,7 @@ def generator_power(
     generator_efficiency: ArrayLike,
     mechanical_loss: ArrayLike = 0.0,
 ) -> tuple[FloatArray, StatusArray]:
-    """Generator power from shaft power (the inverse of :func:`shaft_power`).
+    """Return the generator power from the shaft power (the inverse of :func:`shaft_power`).
 
     Parameters
     ----------

@@ -1,5 +1,6 @@
-"""Reciprocating engines: geometry, brake figures, combustion stoichiometry, charge air,
-turbocharger compressor, heat recovery and the cut-off ratio from fuel per cycle.
+"""Reciprocating engines: geometry, brake figures, stoichiometry, charge air, heat recovery.
+
+Also the turbocharger compressor and the cut-off ratio from the fuel per cycle.
 
 Everything is SI: m, m3, kg, s, K, Pa (absolute), W, J/kg; engine speed is an angular speed
 in rad/s (rpm = 60 / (2 pi) x value; convert at the tag map, once).  The trade's display units
@@ -107,9 +108,12 @@ Check = Literal["pos", "nonneg", "frac", "any"]
 def _inputs(
     *specs: tuple[ArrayLike, Check], shape: tuple[int, ...] | None = None
 ) -> tuple[list[FloatArray], StatusArray]:
-    """Broadcast inputs and flag them: NaN -> INPUT_MISSING; 'pos' needs > 0, 'nonneg' >= 0,
+    """Broadcast inputs and flag them.
+
+    NaN -> INPUT_MISSING; 'pos' needs > 0, 'nonneg' >= 0,
     'frac' 0 < x <= 1 (EFFICIENCY_OUT_OF_RANGE), else INPUT_NONPHYSICAL.  Flagged elements are
-    replaced by 1.0 so downstream arithmetic stays quiet; mask the results with the status."""
+    replaced by 1.0 so downstream arithmetic stays quiet; mask the results with the status.
+    """
     arrs = [np.asarray(v, dtype=np.float64) for v, _ in specs]
     full = np.broadcast_shapes(*(a.shape for a in arrs), *(() if shape is None else (shape,)))
     status = np.zeros(full, dtype=np.uint32)
@@ -190,6 +194,7 @@ class EngineGeometry:
     strokes_per_cycle: int = 4
 
     def __post_init__(self) -> None:
+        """Check the geometry (raises ModelInputError)."""
         for name in ("bore", "stroke"):
             v = getattr(self, name)
             if not (isinstance(v, int | float) and math.isfinite(v) and v > 0):
@@ -250,8 +255,10 @@ class EngineGeometry:
         return self.strokes_per_cycle // 2
 
     def cycles_per_second(self, engine_speed: ArrayLike) -> FloatArray:
-        """Working cycles per second of one cylinder, n / n_R [1/s] (eq. 2), at ``engine_speed``
-        [rad/s]."""
+        """Return the working cycles per second of one cylinder, n / n_R [1/s] (eq. 2).
+
+        ``engine_speed`` in [rad/s].
+        """
         return np.asarray(
             np.asarray(engine_speed, dtype=np.float64) / (2 * math.pi) / self.revolutions_per_cycle,
             dtype=np.float64,
@@ -450,8 +457,11 @@ _NOT_H2O = np.array([s != "H2O" for s in SPECIES])
 def _o2_coefficients(
     fuel: FuelProperties, air: mixtures.Mixture, basis: OxygenBasis
 ) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
-    """(c, a, b, A_st) of eq. (9), per kg of fuel: c mol O2 needed, a mol of stoichiometric
-    air, b mol change of the products (O2 consumed counted negative), on the basis."""
+    """Return (c, a, b, A_st) of eq. (9), per kg of fuel.
+
+    c mol O2 needed, a mol of stoichiometric air, b mol change of the products (O2 consumed
+    counted negative), on the basis.
+    """
     if basis not in ("dry", "wet"):
         raise ModelInputError("basis", basis, "'dry' or 'wet'")
     keep = _NOT_H2O if basis == "dry" else np.ones(len(SPECIES), dtype=bool)
@@ -934,7 +944,7 @@ def cycle_from_fuel(
     gamma: ArrayLike = GAMMA_AIR,
     gas_constant: ArrayLike = R_DRY_AIR,
 ) -> ReciprocatingCycle:
-    """The ideal cycle of an engine from its measured fuel and trapped charge.
+    """Return the ideal cycle of an engine from its measured fuel and trapped charge.
 
     Parameters
     ----------

@@ -1,5 +1,4 @@
-"""Turbine: isentropic efficiency and power from the turbine inlet and exhaust states
-(station 3 → 4).
+"""Turbine: isentropic efficiency and power from the inlet and exhaust states (station 3 → 4).
 
 Equations, per kg of exhaust gas (composition frozen through the expansion)::
 

@@ -104,6 +104,7 @@ class CorrectionCurve:
     name: str = "curve"
 
     def __post_init__(self) -> None:
+        """Check the table (raises ModelInputError)."""
         x = np.asarray(self.x, dtype=np.float64)
         f = np.asarray(self.factor, dtype=np.float64)
         if x.ndim != 1 or x.size < 2 or x.shape != f.shape:

@@ -1,5 +1,4 @@
-"""Correction of reciprocating-engine power and fuel consumption to standard reference
-conditions after ISO 3046-1.
+"""Correction of engine power and fuel consumption to reference conditions after ISO 3046-1.
 
 Standard reference conditions (ISO 3046-1:2002, clause 5; from memory of the clause number,
 the values are the ones every engine data sheet quotes)::
@@ -166,7 +165,7 @@ def indicated_power_ratio(
     *,
     reference: Iso3046Reference = STANDARD_REFERENCE,
 ) -> tuple[FloatArray, StatusArray]:
-    """Ratio of indicated power k of ISO 3046-1, eq. (1) of the module.
+    r"""Ratio of indicated power k of ISO 3046-1, eq. (1) of the module.
 
     Parameters
     ----------
@@ -195,8 +194,8 @@ def indicated_power_ratio(
     Notes
     -----
     .. math::
-        k = \\left(\\frac{p_x - a \\varphi_x p_{sx}}{p_r - a \\varphi_r p_{sr}}\\right)^m
-        \\left(\\frac{T_r}{T_x}\\right)^n \\left(\\frac{T_{cr}}{T_{cx}}\\right)^s
+        k = \left(\frac{p_x - a \varphi_x p_{sx}}{p_r - a \varphi_r p_{sr}}\right)^m
+        \left(\frac{T_r}{T_x}\right)^n \left(\frac{T_{cr}}{T_{cx}}\right)^s
 
     References
     ----------
@@ -450,7 +449,7 @@ def spark_ignition_correction_factor(
     ambient_temperature: ArrayLike,
     ambient_relative_humidity: ArrayLike,
 ) -> tuple[FloatArray, StatusArray]:
-    """Correction factor of spark-ignition engines to 99 kPa dry air and 298 K (ISO 1585).
+    r"""Correction factor of spark-ignition engines to 99 kPa dry air and 298 K (ISO 1585).
 
     Parameters
     ----------
@@ -470,7 +469,7 @@ def spark_ignition_correction_factor(
 
     Notes
     -----
-    .. math:: \\alpha_a = (99\\,\\mathrm{kPa} / p_d)^{1.2} (T / 298\\,\\mathrm{K})^{0.6}
+    .. math:: \alpha_a = (99\,\mathrm{kPa} / p_d)^{1.2} (T / 298\,\mathrm{K})^{0.6}
 
     with the dry-air pressure p_d = p - phi p_s(T).  99 kPa dry is the ISO 3046-1 reference
     (100 kPa at 30 % RH and 25 °C).  Validity as stated in ISO 1585 (from memory):

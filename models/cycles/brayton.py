@@ -1,5 +1,4 @@
-"""Comparison cycles: the air-standard Brayton cycle, the Brayton cycle on the real working
-fluid, and the Carnot bound.
+"""Comparison cycles: air-standard Brayton, Brayton on the real working fluid, Carnot bound.
 
 Reported beside the reconstructed thermal efficiency, the three tell where the gap to the
 ideal is: the air-standard figure is the cold-air limit at the measured pressure ratio, the
@@ -158,7 +157,7 @@ def brayton_cycle(
     fuel_enthalpy: ArrayLike = 0.0,
     real_gas: bool = True,
 ) -> BraytonCycle:
-    """Simple Brayton cycle with variable properties (ideal when both efficiencies are 1).
+    """Compute a simple Brayton cycle with variable properties (ideal when both efficiencies are 1).
 
     Parameters
     ----------

@@ -120,7 +120,7 @@ def _ratio_status(
 def otto_efficiency(
     compression_ratio: ArrayLike, gamma: ArrayLike = GAMMA_AIR
 ) -> tuple[FloatArray, StatusArray]:
-    """Thermal efficiency of the air-standard Otto cycle (constant specific heats).
+    r"""Thermal efficiency of the air-standard Otto cycle (constant specific heats).
 
     Parameters
     ----------
@@ -138,7 +138,7 @@ def otto_efficiency(
 
     Notes
     -----
-    .. math:: \\eta_{Otto} = 1 - r^{1-\\gamma}
+    .. math:: \eta_{Otto} = 1 - r^{1-\gamma}
 
     Independent of the heat added; valid for the ideal cycle on an ideal gas of constant
     specific heats only (with variable properties use :func:`otto_cycle` with ``fluid``).
@@ -164,7 +164,7 @@ def otto_efficiency(
 def diesel_efficiency(
     compression_ratio: ArrayLike, cutoff_ratio: ArrayLike, gamma: ArrayLike = GAMMA_AIR
 ) -> tuple[FloatArray, StatusArray]:
-    """Thermal efficiency of the air-standard Diesel cycle (constant specific heats).
+    r"""Thermal efficiency of the air-standard Diesel cycle (constant specific heats).
 
     Parameters
     ----------
@@ -185,7 +185,7 @@ def diesel_efficiency(
     Notes
     -----
     .. math::
-        \\eta_{Diesel} = 1 - r^{1-\\gamma} \\frac{r_c^{\\gamma} - 1}{\\gamma (r_c - 1)}
+        \eta_{Diesel} = 1 - r^{1-\gamma} \frac{r_c^{\gamma} - 1}{\gamma (r_c - 1)}
 
     At rc = 1 the limit is the Otto efficiency (taken exactly there).
 
@@ -213,7 +213,7 @@ def dual_efficiency(
     cutoff_ratio: ArrayLike,
     gamma: ArrayLike = GAMMA_AIR,
 ) -> tuple[FloatArray, StatusArray]:
-    """Thermal efficiency of the air-standard dual (limited-pressure) cycle.
+    r"""Thermal efficiency of the air-standard dual (limited-pressure) cycle.
 
     Parameters
     ----------
@@ -236,8 +236,8 @@ def dual_efficiency(
     Notes
     -----
     .. math::
-        \\eta_{dual} = 1 - r^{1-\\gamma}
-        \\frac{\\alpha r_c^{\\gamma} - 1}{(\\alpha - 1) + \\alpha \\gamma (r_c - 1)}
+        \eta_{dual} = 1 - r^{1-\gamma}
+        \frac{\alpha r_c^{\gamma} - 1}{(\alpha - 1) + \alpha \gamma (r_c - 1)}
 
     alpha = 1 gives the Diesel, rc = 1 the Otto efficiency.
 

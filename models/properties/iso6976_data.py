@@ -207,7 +207,7 @@ def gross_molar(names: tuple[str, ...], column: int) -> NDArray[np.float64]:
 
 
 def enthalpy_of_vaporization(column: int) -> float:
-    """Standard enthalpy of vaporization of water L° [J/mol] at combustion-table ``column``."""
+    """Return the standard enthalpy of vaporization of water L° [J/mol] at table ``column``."""
     return _L_VAP[column] * 1e3
 
 

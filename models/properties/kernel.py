@@ -1,4 +1,4 @@
-"""The fast property kernel: ideal-gas mixture properties from coefficient rows, Newton solvers.
+r"""The fast property kernel: ideal-gas mixture properties from coefficient rows, Newton solvers.
 
 Every ideal-gas property in ``models`` is evaluated here, once: :class:`models.properties.
 mixtures.Mixture` is a checked front over a :class:`Fluid`, and the gas-turbine reconstruction
@@ -13,14 +13,14 @@ high range, species, row).  Row groups (slices :data:`H`, :data:`CP`, :data:`PHI
 
 .. math::
 
-    h(T) &= \\sum_{k=0}^{5} c_k T^k \\quad \\text{(rows 0-5, sensible: } h(298.15\\,K) = 0)
+    h(T) &= \sum_{k=0}^{5} c_k T^k \quad \text{(rows 0-5, sensible: } h(298.15\,K) = 0)
 
-    c_p(T) &= \\sum_{k=0}^{4} c_{6+k} T^k \\quad \\text{(rows 6-10)}
+    c_p(T) &= \sum_{k=0}^{4} c_{6+k} T^k \quad \text{(rows 6-10)}
 
-    \\varphi(T) &= c_{11} \\ln T + \\sum_{k=1}^{4} c_{11+k} T^k + c_{16} \\quad
-    \\text{(rows 11-16)}
+    \varphi(T) &= c_{11} \ln T + \sum_{k=1}^{4} c_{11+k} T^k + c_{16} \quad
+    \text{(rows 11-16)}
 
-with :math:`\\varphi(T) = s^\\circ(T)` at :data:`P_REF` (no pressure and no mixing term).  The
+with :math:`\varphi(T) = s^\circ(T)` at :data:`P_REF` (no pressure and no mixing term).  The
 high-range constants are shifted so that h and φ are exactly continuous at :data:`T_MID`
 (the published fits jump by a few parts per million there; a jump would leave a Newton solve
 without a root in the gap).  A :class:`Fluid` is ``base + Σ w_k tab_k``: dry air plus
@@ -34,16 +34,16 @@ Truncated virial fit to the Lemmon et al. (2000) air equation of state
 
 .. math::
 
-    Z - 1 &= \\pi \\sum_i b_i \\tau^i + \\pi^2 \\sum_i c_i \\tau^i
+    Z - 1 &= \pi \sum_i b_i \tau^i + \pi^2 \sum_i c_i \tau^i
 
-    \\frac{h - h^{ig}}{R T} &= \\pi \\sum_i i\\, b_i \\tau^i
-        + \\frac{\\pi^2}{2} \\sum_i i\\, c_i \\tau^i
+    \frac{h - h^{ig}}{R T} &= \pi \sum_i i\, b_i \tau^i
+        + \frac{\pi^2}{2} \sum_i i\, c_i \tau^i
 
-    \\frac{s - s^{ig}}{R} &= -\\pi \\sum_i (1 - i)\\, b_i \\tau^i
-        - \\frac{\\pi^2}{2} \\sum_i (1 - i)\\, c_i \\tau^i
+    \frac{s - s^{ig}}{R} &= -\pi \sum_i (1 - i)\, b_i \tau^i
+        - \frac{\pi^2}{2} \sum_i (1 - i)\, c_i \tau^i
 
-    \\frac{c_p - c_p^{ig}}{R} &\\approx \\pi \\sum_i i (1 - i)\\, b_i \\tau^i
-        + \\frac{\\pi^2}{2} \\sum_i i (1 - i)\\, c_i \\tau^i
+    \frac{c_p - c_p^{ig}}{R} &\approx \pi \sum_i i (1 - i)\, b_i \tau^i
+        + \frac{\pi^2}{2} \sum_i i (1 - i)\, c_i \tau^i
 
 applied on a molar basis to any mixture (corresponding states), scaled by its gas constant.
 
@@ -558,7 +558,7 @@ class Fluid:
     def from_mass_fractions(
         cls, y: FloatArray, R: Num, species: NDArray[np.intp] | None = None
     ) -> Fluid:
-        """A fluid of composition ``y`` whose rows are built lazily, per range and row group.
+        """Make a fluid of composition ``y`` whose rows are built lazily, per range and group.
 
         Parameters
         ----------

@@ -261,8 +261,10 @@ class Mixture:
 
     # ---- the kernel (unchecked) -------------------------------------------------------------
     def _fit(self, out: FloatArray, T: FloatArray) -> FloatArray:
-        """Kernel output in the broadcast shape of T and the batch (the kernel keeps a unit
-        batch axis for a mixture without one)."""
+        """Reshape kernel output to the broadcast shape of T and the batch.
+
+        The kernel keeps a unit batch axis for a mixture without one.
+        """
         shape = np.broadcast_shapes(T.shape, self.shape)
         return out if out.shape == shape else out.reshape(shape)
 

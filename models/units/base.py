@@ -79,7 +79,10 @@ class UnitType(Protocol):
         parameters: Mapping[str, FloatArray | float],
         corrections: Any = None,
     ) -> ComputeOutput:
-        """Compute a batch.  ``measurements`` arrays share one shape ``(N,)``; missing
+        """Compute a batch.
+
+        ``measurements`` arrays share one shape ``(N,)``; missing
         optional measurements are absent or all-NaN.  ``fuel`` is the unit type's own fuel
-        description object; ``corrections`` its optional correction-table object."""
+        description object; ``corrections`` its optional correction-table object.
+        """
         ...

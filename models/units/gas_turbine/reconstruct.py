@@ -519,7 +519,7 @@ def _forward_reference(
     T4s: FloatArray,
     groups: Groups,
 ) -> tuple[FloatArray, FloatArray, NDArray[np.bool_]]:
-    """Generator power and heat rate at reference ambient under the control law.
+    """Return the generator power and heat rate at reference ambient under the control law.
 
     ``T2s`` and ``T4s`` of the measured cycle seed the Newton solves.
     """
@@ -587,7 +587,7 @@ _MEAS_KEYS = {
 
 
 def _par(v: ArrayLike, n: int) -> Num:
-    """A unit parameter: a Python float when scalar, else an array of shape (N,)."""
+    """Return a unit parameter: a Python float when scalar, else an array of shape (N,)."""
     a = np.asarray(v, dtype=np.float64)
     return float(a) if a.ndim == 0 else _arr(a, n)
 

@@ -1,4 +1,6 @@
-"""Whole reciprocating engine: the forward model (:func:`simulate_engine`, plant-like sensor
+"""Whole reciprocating engine: forward model and reconstruction from one batch of measurements.
+
+The forward model (:func:`simulate_engine`, plant-like sensor
 values from engine health, ambient and load) and the reconstruction
 (:func:`reconstruct_engine`, every figure of :mod:`models.components.reciprocating`,
 the ideal cycles of :mod:`models.cycles.reciprocating` and the ISO 3046-1 correction from one
