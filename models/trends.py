@@ -597,9 +597,20 @@ def forecast_crossing(
 
 
 def ewma_step(previous: ArrayLike, x_new: ArrayLike, alpha: float) -> FloatArray:
-    """One step of :func:`ewma` for live use: ``alpha * x + (1 - alpha) * previous``.
+    r"""One step of :func:`ewma` for live use: ``alpha * x + (1 - alpha) * previous``.
 
     A NaN ``previous`` starts from ``x_new``; a NaN ``x_new`` keeps ``previous``.
+
+    Notes
+    -----
+    .. math::
+
+        S_i = \alpha x_i + (1 - \alpha) S_{i-1}
+
+    References
+    ----------
+    .. [1] S. W. Roberts, "Control chart tests based on geometric moving averages",
+       Technometrics 1(3):239-250, 1959.
     """
     if not (0.0 < alpha <= 1.0):
         raise ModelInputError("alpha", alpha, "0 < alpha <= 1")
@@ -618,7 +629,7 @@ def ewma(x: ArrayLike, alpha: float, axis: int = -1) -> FloatArray:
     x : array_like of float
         Samples along ``axis`` [any unit]; other axes are independent series.
     alpha : float
-        Weight of the newest sample, 0 < alpha <= 1 [1]; the time constant is about
+        Weight of the newest sample, 0 < alpha <= 1 [-]; the time constant is about
         ``1 / alpha`` samples.
     axis : int
         Time axis.
@@ -631,6 +642,10 @@ def ewma(x: ArrayLike, alpha: float, axis: int = -1) -> FloatArray:
 
     Notes
     -----
+    .. math::
+
+        S_0 = x_0, \qquad S_i = \alpha x_i + (1 - \alpha) S_{i-1}
+
     :math:`S_0 = x_0`, :math:`S_i = \alpha x_i + (1-\alpha) S_{i-1}` (Roberts 1959).
 
     References

@@ -46,13 +46,26 @@ StatusArray = NDArray[np.uint32]
 
 
 def stoichiometric_fuel_air_ratio(air: mixtures.Mixture, fuel: FuelProperties) -> FloatArray:
-    """Stoichiometric fuel-air ratio [kg fuel / kg air] of ``fuel`` in the (humid) air ``air``."""
+    r"""Stoichiometric fuel-air ratio [kg fuel / kg air] of ``fuel`` in the (humid) air ``air``.
+
+    Notes
+    -----
+    .. math::
+
+        f_{st} = \frac{y_{O_2,air}}{\nu_{O_2}}, \qquad
+        \nu_{O_2} = \text{kg of } O_2 \text{ consumed per kg of fuel burnt}
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, ch. 2 (combustion) and app. A.
+    """
     y_o2 = air.y[..., INDEX["O2"]]
     return np.asarray(y_o2 / -fuel.product_delta[..., INDEX["O2"]], dtype=np.float64)
 
 
 def exhaust_mixture(air: mixtures.Mixture, fuel: FuelProperties, f: ArrayLike) -> mixtures.Mixture:
-    """Exhaust gas of complete combustion at fuel-air ratio f, eq. (1).
+    r"""Exhaust gas of complete combustion at fuel-air ratio f, eq. (1).
 
     Parameters
     ----------
@@ -60,11 +73,22 @@ def exhaust_mixture(air: mixtures.Mixture, fuel: FuelProperties, f: ArrayLike) -
         Combustion air.
     fuel : FuelProperties
     f : array_like
-        Fuel-air ratio [1], 0 <= f < stoichiometric (lean).  Elements outside give NaN rows.
+        Fuel-air ratio [-], 0 <= f < stoichiometric (lean).  Elements outside give NaN rows.
 
     Returns
     -------
     models.properties.mixtures.Mixture
+
+    Notes
+    -----
+    .. math::
+
+        y_g = \frac{y_a + f\, \Delta y_{fuel}}{1 + f}
+
+    References
+    ----------
+    .. [1] ISO 6976:2016 (fuel composition); complete combustion C -> CO2, H -> H2O, S -> SO2
+       (common practice).
     """
     fa = np.asarray(f, dtype=np.float64)
     f_st = stoichiometric_fuel_air_ratio(air, fuel)
@@ -75,7 +99,19 @@ def exhaust_mixture(air: mixtures.Mixture, fuel: FuelProperties, f: ArrayLike) -
 
 
 def turbine_inlet_pressure(p2: ArrayLike, combustor_pressure_loss: ArrayLike) -> FloatArray:
-    """p3 = p2 (1 - dp_comb) [Pa], eq. (3); ``combustor_pressure_loss`` is a fraction of p2."""
+    r"""p3 = p2 (1 - dp_comb) [Pa], eq. (3); ``combustor_pressure_loss`` is a fraction of p2.
+
+    Notes
+    -----
+    .. math::
+
+        p_3 = p_2 \, (1 - \Delta p_{comb} / p_2)
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, ch. 2.
+    """
     return np.asarray(
         np.asarray(p2, dtype=np.float64) * (1.0 - np.asarray(combustor_pressure_loss)),
         dtype=np.float64,
@@ -88,7 +124,7 @@ class CombustorState:
 
     Attributes
     ----------
-    fuel_air_ratio : f [1]
+    fuel_air_ratio : f [-]
     exhaust : models.properties.mixtures.Mixture  exhaust-gas composition
     T3 : turbine inlet temperature [K]
     p3 : turbine inlet pressure [Pa]
@@ -116,7 +152,7 @@ def combustor(
     casing_heat_loss_fraction: ArrayLike = 0.0,
     combustor_pressure_loss: ArrayLike = 0.04,
 ) -> CombustorState:
-    """Turbine inlet state by the combustor heat balance, eq. (2).
+    r"""Turbine inlet state by the combustor heat balance, eq. (2).
 
     Parameters
     ----------
@@ -126,15 +162,15 @@ def combustor(
     T2, p2 : array_like
         Compressor discharge temperature [K] and pressure [Pa].
     fuel_air_ratio : array_like
-        f = m_f / m_a [1].
+        f = m_f / m_a [-].
     fuel_enthalpy : array_like, optional
         Sensible enthalpy of the fuel as supplied, h_f [J/kg] (default 0: fuel at 25 °C).
     combustion_efficiency : array_like, optional
-        eta_b [1] (default 0.995).
+        eta_b [-] (default 0.995).
     casing_heat_loss_fraction : array_like, optional
-        c_loss [1 of m_f LHV] (default 0).
+        c_loss [-] (of m_f LHV) (default 0).
     combustor_pressure_loss : array_like, optional
-        dp_comb / p2 [1] (default 0.04).
+        dp_comb / p2 [-] (default 0.04).
 
     Returns
     -------
@@ -142,8 +178,19 @@ def combustor(
 
     Notes
     -----
+    .. math::
+
+        m_a h_2 + m_f \left(h_f + (\eta_b - c_{loss}) LHV\right) = (m_a + m_f)\, h_g(T_3, p_3),
+        \qquad p_3 = p_2 (1 - \Delta p_{comb})
+
     Solved for T3 by Newton (:meth:`models.properties.mixtures.Mixture.T_from_h` with the real-gas
     departure at p3).  NaN + ENERGY_BALANCE_INFEASIBLE where f is not lean-positive.
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, ch. 2.
+    .. [2] ASME PTC 22-2014, Performance Test Code on Gas Turbines (combustor heat balance).
     """
     T2a = np.asarray(T2, dtype=np.float64)
     p2a = np.asarray(p2, dtype=np.float64)

@@ -44,7 +44,7 @@ __all__ = [
 FloatArray = NDArray[np.float64]
 StatusArray = NDArray[np.uint32]
 
-#: Plausible compressor isentropic efficiency band [1] of large axial compressors in service
+#: Plausible compressor isentropic efficiency band [-] of large axial compressors in service
 #: (common practice); outside it ``EFFICIENCY_IMPLAUSIBLE`` is set as a warning.
 COMPRESSOR_EFFICIENCY_BAND: tuple[float, float] = (0.80, 0.92)
 
@@ -55,11 +55,11 @@ class CompressorState:
 
     Attributes
     ----------
-    pressure_ratio : p2/p1 [1]
+    pressure_ratio : p2/p1 [-]
     T2s : isentropic discharge temperature [K]
     h1, h2, h2s : enthalpies at stations 1, 2, 2s [J/kg] (sensible, real gas)
-    isentropic_efficiency : eta_c [1]
-    polytropic_efficiency : eta_p [1] (ideal gas)
+    isentropic_efficiency : eta_c [-]
+    polytropic_efficiency : eta_p [-] (ideal gas)
     specific_work : w_c = h2 - h1 [J/kg]
     status : Reason bits (uint32)
     """
@@ -102,7 +102,7 @@ def compressor(
     *,
     real_gas: bool = True,
 ) -> CompressorState:
-    """Compressor performance from measured inlet and discharge states.
+    r"""Compressor performance from measured inlet and discharge states.
 
     Parameters
     ----------
@@ -121,10 +121,23 @@ def compressor(
 
     Notes
     -----
+    .. math::
+
+        \eta_c = \frac{h(T_{2s}, p_2) - h(T_1, p_1)}{h(T_2, p_2) - h(T_1, p_1)}, \qquad
+        s(T_{2s}, p_2) = s(T_1, p_1)
+
+        \eta_p = \frac{R \ln(p_2 / p_1)}{s^\circ(T_2) - s^\circ(T_1)}, \qquad w_c = h_2 - h_1
+
     Equations (1)-(5) of the module docstring.  Errors (NaN): ``INPUT_MISSING``,
     ``INPUT_NONPHYSICAL``, ``TEMPERATURE_OUT_OF_RANGE``, ``DISCHARGE_NOT_HOTTER``,
     ``PRESSURE_RATIO_INVALID``, ``NOT_CONVERGED``, ``EFFICIENCY_OUT_OF_RANGE``.  Warning
     (value kept): ``EFFICIENCY_IMPLAUSIBLE`` outside :data:`COMPRESSOR_EFFICIENCY_BAND`.
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, sections 2.1 and 2.2.
+    .. [2] ASME PTC 10-1997, Performance Test Code on Compressors and Exhausters.
     """
     T1a = np.asarray(T1, dtype=np.float64)
     p1a = np.asarray(p1, dtype=np.float64)
@@ -178,9 +191,20 @@ def compressor_discharge_temperature(
     p2: ArrayLike,
     isentropic_efficiency: ArrayLike,
 ) -> tuple[FloatArray, StatusArray]:
-    """Forward: discharge temperature [K] from the inlet state, p2 and eta_c (real gas).
+    r"""Forward: discharge temperature [K] from the inlet state, p2 and eta_c (real gas).
 
     ``h2 = h1 + (h2s - h1) / eta_c``, then T2 from h2 at p2 (Newton).
+
+    Notes
+    -----
+    .. math::
+
+        h(T_2, p_2) = h_1 + \frac{h(T_{2s}, p_2) - h_1}{\eta_c}
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, section 2.1.
     """
     T2s, st = mix.isentropic_T(T1, p1, p2, real_gas=True)
     h1 = mix.h_real(T1, p1)

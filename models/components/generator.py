@@ -42,14 +42,14 @@ def shaft_power(
     generator_efficiency: ArrayLike,
     mechanical_loss: ArrayLike = 0.0,
 ) -> tuple[FloatArray, StatusArray]:
-    """Shaft power from measured generator power.
+    r"""Shaft power from measured generator power.
 
     Parameters
     ----------
     generator_power : array_like
         Generator terminal power P_gen [W]; must be > 0.
     generator_efficiency : array_like
-        Generator efficiency eta_gen [1], 0 < eta_gen <= 1.
+        Generator efficiency eta_gen [-], 0 < eta_gen <= 1.
     mechanical_loss : array_like, optional
         Fixed mechanical and shaft-driven auxiliary loss P_mech [W], >= 0 (default 0).
 
@@ -62,8 +62,17 @@ def shaft_power(
 
     Notes
     -----
+    .. math::
+
+        P_{shaft} = \frac{P_{gen}}{\eta_{gen}} + P_{mech}
+
     ``P_shaft = P_gen / eta_gen + P_mech``.  Part-load dependence of the generator efficiency
     is left to the caller (pass an array).
+
+    References
+    ----------
+    .. [1] ASME PTC 22-2014, Performance Test Code on Gas Turbines (shaft power from the
+       generator output and its losses).
 
     Examples
     --------
@@ -90,14 +99,14 @@ def generator_power(
     generator_efficiency: ArrayLike,
     mechanical_loss: ArrayLike = 0.0,
 ) -> tuple[FloatArray, StatusArray]:
-    """Return the generator power from the shaft power (the inverse of :func:`shaft_power`).
+    r"""Return the generator power from the shaft power (the inverse of :func:`shaft_power`).
 
     Parameters
     ----------
     shaft_power : array_like
         Shaft power P_shaft [W].
     generator_efficiency : array_like
-        Generator efficiency eta_gen [1], 0 < eta_gen <= 1.
+        Generator efficiency eta_gen [-], 0 < eta_gen <= 1.
     mechanical_loss : array_like, optional
         Fixed mechanical loss P_mech [W], >= 0 (default 0).
 
@@ -111,7 +120,16 @@ def generator_power(
 
     Notes
     -----
+    .. math::
+
+        P_{gen} = \eta_{gen} \, (P_{shaft} - P_{mech})
+
     ``P_gen = eta_gen (P_shaft - P_mech)``.
+
+    References
+    ----------
+    .. [1] ASME PTC 22-2014, Performance Test Code on Gas Turbines (shaft power from the
+       generator output and its losses).
     """
     Ps = np.asarray(shaft_power, dtype=np.float64)
     eta = np.asarray(generator_efficiency, dtype=np.float64)

@@ -324,7 +324,7 @@ def brake_performance(
     generator_efficiency: ArrayLike = 1.0,
     mechanical_loss: ArrayLike = 0.0,
 ) -> BrakePerformance:
-    """Brake power, efficiency, heat rate, specific fuel consumption and BMEP.
+    r"""Brake power, efficiency, heat rate, specific fuel consumption and BMEP.
 
     Parameters
     ----------
@@ -352,6 +352,11 @@ def brake_performance(
 
     Notes
     -----
+    .. math::
+
+        \eta_b = \frac{P_b}{m_f LHV}, \quad HR_b = \frac{m_f LHV}{P_b}, \quad
+        bsfc = \frac{m_f}{P_b}, \quad bmep = \frac{P_b\, n_R}{V_d\, n}
+
     Equations (5)-(7) of the module: P_b from :func:`models.components.generator.shaft_power`;
     eta_b = P_b / (m_f LHV); HR_b = 1 / eta_b; bsfc = m_f / P_b;
     bmep = P_b n_R / (V_d n) with n = omega / (2 pi).  Heat rate and efficiency are on the LHV
@@ -409,7 +414,7 @@ def brake_performance(
 def relative_efficiency(
     efficiency: ArrayLike, ideal_efficiency: ArrayLike
 ) -> tuple[FloatArray, StatusArray]:
-    """Relative efficiency: actual over ideal-cycle efficiency [-].
+    r"""Relative efficiency: actual over ideal-cycle efficiency [-].
 
     Parameters
     ----------
@@ -424,6 +429,12 @@ def relative_efficiency(
         eta / eta_ideal [-]; NaN with ``EFFICIENCY_OUT_OF_RANGE`` where above 1 (the ideal
         cycle must bound the engine).
     status : ndarray of uint32
+
+    Notes
+    -----
+    .. math::
+
+        \eta_{rel} = \frac{\eta}{\eta_{ideal}}
 
     References
     ----------
@@ -445,7 +456,12 @@ def relative_efficiency(
 # Combustion stoichiometry
 # --------------------------------------------------------------------------------------------
 def dry_air() -> mixtures.Mixture:
-    """Dry air of :data:`models.properties.humid_air.DRY_AIR` as a mixture."""
+    r"""Dry air of :data:`models.properties.humid_air.DRY_AIR` as a mixture.
+
+    References
+    ----------
+    .. [1] ISO 2533:1975, Standard Atmosphere, Table 1 (composition of dry air).
+    """
     return mixtures.Mixture.from_mole_fractions(humid_air.DRY_AIR)
 
 
@@ -486,7 +502,7 @@ def exhaust_oxygen(
     air: mixtures.Mixture | None = None,
     basis: OxygenBasis = "dry",
 ) -> tuple[FloatArray, StatusArray]:
-    """Exhaust O2 mole fraction of complete lean combustion (forward of eq. 9).
+    r"""Exhaust O2 mole fraction of complete lean combustion (forward of eq. 9).
 
     Parameters
     ----------
@@ -508,6 +524,10 @@ def exhaust_oxygen(
 
     Notes
     -----
+    .. math::
+
+        x_{O_2} = \frac{(\lambda - 1)\, c}{\lambda a + b}
+
     Per kg of fuel burnt in lambda A_st kg of air, complete combustion (C -> CO2, H -> H2O,
     S -> SO2):  x_O2 = (lambda - 1) c / (lambda a + b), with c the moles of O2 needed, a the
     moles of stoichiometric air and b the mole change of the fuel's products
@@ -540,7 +560,7 @@ def excess_air_ratio_from_oxygen(
     air: mixtures.Mixture | None = None,
     basis: OxygenBasis = "dry",
 ) -> tuple[FloatArray, StatusArray]:
-    """Excess-air ratio lambda from the measured exhaust O2 (inverse of eq. 9).
+    r"""Excess-air ratio lambda from the measured exhaust O2 (inverse of eq. 9).
 
     Parameters
     ----------
@@ -562,6 +582,10 @@ def excess_air_ratio_from_oxygen(
 
     Notes
     -----
+    .. math::
+
+        \lambda = \frac{c + x_{O_2} b}{c - x_{O_2} a}
+
     lambda = (c + x b) / (c - x a), the solution of eq. (9) for lambda; x = 0 gives 1 (a rich
     mixture also reads 0 % O2: lambda <= 1 cannot be told apart without CO).  The often
     quoted 20.9 / (20.9 - O2 %) ignores the contraction of the products and reads 4-8 % high
@@ -594,7 +618,7 @@ def excess_air_ratio_from_air_flow(
     fuel: FuelProperties,
     air: mixtures.Mixture | None = None,
 ) -> tuple[FloatArray, StatusArray]:
-    """Excess-air ratio lambda = m_a / (m_f A_st) from a measured air flow (eq. 8).
+    r"""Excess-air ratio lambda = m_a / (m_f A_st) from a measured air flow (eq. 8).
 
     Parameters
     ----------
@@ -611,6 +635,17 @@ def excess_air_ratio_from_air_flow(
     lambda : ndarray
         [-]; lambda < 1 (rich) is returned as computed.
     status : ndarray of uint32
+
+    Notes
+    -----
+    .. math::
+
+        \lambda = \frac{m_a}{m_f\, A_{st}}
+
+    References
+    ----------
+    .. [1] J. B. Heywood, *Internal Combustion Engine Fundamentals*, 2nd ed., McGraw-Hill,
+       2018, section 2.9.
 
     Examples
     --------
@@ -637,7 +672,7 @@ def charge_density(
     *,
     real_gas: bool = True,
 ) -> tuple[FloatArray, StatusArray]:
-    """Density of the charge in the receiver, rho = p / (Z R T) [kg/m3].
+    r"""Density of the charge in the receiver, rho = p / (Z R T) [kg/m3].
 
     Parameters
     ----------
@@ -657,6 +692,17 @@ def charge_density(
     -------
     rho : ndarray [kg/m3]
     status : ndarray of uint32
+
+    Notes
+    -----
+    .. math::
+
+        \rho = \frac{p}{Z R T}
+
+    References
+    ----------
+    .. [1] J. B. Heywood, *Internal Combustion Engine Fundamentals*, 2nd ed., McGraw-Hill,
+       2018, section 2.10.
     """
     mix = dry_air() if fluid is None else fluid
     (T, p), status = _inputs((temperature, "pos"), (pressure, "pos"), shape=mix.shape)
@@ -680,7 +726,7 @@ def volumetric_efficiency(
     *,
     fluid: mixtures.Mixture | None = None,
 ) -> tuple[FloatArray, StatusArray]:
-    """Volumetric efficiency against the receiver (charge-air) density (eq. 10).
+    r"""Volumetric efficiency against the receiver (charge-air) density (eq. 10).
 
     Parameters
     ----------
@@ -701,6 +747,10 @@ def volumetric_efficiency(
 
     Notes
     -----
+    .. math::
+
+        \eta_v = \frac{m_{ch}}{\rho_{rec} V_d\, n / n_R}
+
     eta_v = m_ch / (rho_rec V_d n / n_R), rho_rec from :func:`charge_density`.  Referred to
     the receiver, not the ambient, so that boost is not counted as breathing; values of
     0.85-1.0 are usual for four-stroke engines, above 1 with scavenging overlap.  For a
@@ -727,7 +777,7 @@ def turbocharger_compressor(
     outlet_temperature: ArrayLike,
     outlet_pressure: ArrayLike,
 ) -> CompressorState:
-    """Turbocharger compressor figures, ambient (inlet) to charge air before the intercooler.
+    r"""Turbocharger compressor figures, ambient (inlet) to charge air before the intercooler.
 
     Parameters
     ----------
@@ -747,8 +797,18 @@ def turbocharger_compressor(
 
     Notes
     -----
+    .. math::
+
+        \eta_c = \frac{h(T_{2s}, p_2) - h(T_1, p_1)}{h(T_2, p_2) - h(T_1, p_1)}
+
     :func:`models.components.compressor.compressor`: eta_c = (h2s - h1) / (h2 - h1).  With one
     compressor stage per engine bank, pass each bank's readings separately.
+
+    References
+    ----------
+    .. [1] J. B. Heywood, *Internal Combustion Engine Fundamentals*, 2nd ed., McGraw-Hill,
+       2018, section 6.8 (turbocharger compressor).
+    .. [2] H. I. H. Saravanamuttoo et al., *Gas Turbine Theory*, 7th ed., 2017, section 2.1.
     """
     st = compressor(fluid, inlet_temperature, inlet_pressure, outlet_temperature, outlet_pressure)
     status = np.array(st.status & ~np.uint32(Reason.EFFICIENCY_IMPLAUSIBLE), dtype=np.uint32)
@@ -765,7 +825,7 @@ def exhaust_heat(
     temperature_in: ArrayLike,
     temperature_out: ArrayLike,
 ) -> tuple[FloatArray, StatusArray]:
-    """Heat given up by the exhaust in a recovery boiler, m_g (h(T_in) - h(T_out)) [W].
+    r"""Heat given up by the exhaust in a recovery boiler, m_g (h(T_in) - h(T_out)) [W].
 
     Parameters
     ----------
@@ -780,6 +840,17 @@ def exhaust_heat(
     -------
     Q : ndarray [W]
     status : ndarray of uint32
+
+    Notes
+    -----
+    .. math::
+
+        Q = m_g \left(h_g(T_{in}) - h_g(T_{out})\right)
+
+    References
+    ----------
+    .. [1] J. B. Heywood, *Internal Combustion Engine Fundamentals*, 2nd ed., McGraw-Hill,
+       2018, section 2.8 (fuel energy balance).
     """
     (m, t_in, t_out), status = _inputs(
         (exhaust_mass_flow, "pos"),
@@ -821,7 +892,7 @@ def chp_efficiency(
     charge_air_cooler_heat: ArrayLike | None = None,
     exhaust_heat_recovered: ArrayLike | None = None,
 ) -> ChpEfficiency:
-    """Electrical, heat-recovery and total efficiency of a CHP engine set (eq. 11).
+    r"""Electrical, heat-recovery and total efficiency of a CHP engine set (eq. 11).
 
     Parameters
     ----------
@@ -831,8 +902,9 @@ def chp_efficiency(
         m_f [kg/s], > 0.
     lower_heating_value : array_like
         LHV [J/kg], > 0.
-    jacket_water_heat, lube_oil_heat, charge_air_cooler_heat, exhaust_heat_recovered : \
-array_like, optional
+    jacket_water_heat, lube_oil_heat, charge_air_cooler_heat : array_like, optional
+        As ``exhaust_heat_recovered``.
+    exhaust_heat_recovered : array_like, optional
         Useful heat recovered from each circuit [W], >= 0.  Leave out (None) a stream not
         recovered on site; a NaN element is a missing reading (the heat figures are NaN).
 
@@ -843,6 +915,10 @@ array_like, optional
 
     Notes
     -----
+    .. math::
+
+        \eta_{CHP} = \frac{P_{gen} + Q_{jw} + Q_{lo} + Q_{cac} + Q_{exh}}{m_f\, LHV}
+
     Only heat delivered to the user counts: a charge-air cooler whose low-temperature stage
     dumps to a radiator contributes its high-temperature stage only.  LHV basis.
 
@@ -894,7 +970,7 @@ def heat_input_per_charge(
     lower_heating_value: ArrayLike,
     combustion_efficiency: ArrayLike = 1.0,
 ) -> tuple[FloatArray, StatusArray]:
-    """Heat released per kg of trapped charge, q_in = eta_comb m_f LHV / m_ch [J/kg] (eq. 12).
+    r"""Heat released per kg of trapped charge, q_in = eta_comb m_f LHV / m_ch [J/kg] (eq. 12).
 
     Parameters
     ----------
@@ -917,8 +993,18 @@ def heat_input_per_charge(
 
     Notes
     -----
+    .. math::
+
+        q = \frac{\eta_{comb}\, m_{f,cyc}\, LHV}{m_{ch,cyc}}
+          = \frac{\eta_{comb}\, m_f\, LHV}{m_{ch}}
+
     Per cycle and cylinder, m_f,cyc = m_f / (z n_cyc) and m_ch,cyc = m_ch / (z n_cyc); the
     ratio is the same on a flow basis, so flows may be passed directly.
+
+    References
+    ----------
+    .. [1] J. B. Heywood, *Internal Combustion Engine Fundamentals*, 2nd ed., McGraw-Hill,
+       2018, section 5.3.
     """
     (mf, mch, lhv, eta), status = _inputs(
         (fuel_mass_flow, "pos"),
@@ -944,7 +1030,7 @@ def cycle_from_fuel(
     gamma: ArrayLike = GAMMA_AIR,
     gas_constant: ArrayLike = R_DRY_AIR,
 ) -> ReciprocatingCycle:
-    """Return the ideal cycle of an engine from its measured fuel and trapped charge.
+    r"""Return the ideal cycle of an engine from its measured fuel and trapped charge.
 
     Parameters
     ----------
@@ -970,6 +1056,17 @@ def cycle_from_fuel(
     -------
     models.cycles.reciprocating.ReciprocatingCycle
         ``cutoff_ratio`` is the estimate of :func:`estimate_cutoff_ratio`.
+
+    Notes
+    -----
+    .. math::
+
+        q = \frac{\eta_{comb}\, m_f\, LHV}{m_{ch}} \quad \text{(heat per kg of trapped charge)}
+
+    References
+    ----------
+    .. [1] J. B. Heywood, *Internal Combustion Engine Fundamentals*, 2nd ed., McGraw-Hill,
+       2018, section 5.3.
     """
     q, st = heat_input_per_charge(
         fuel_mass_flow, charge_mass_flow, lower_heating_value, combustion_efficiency
@@ -1014,7 +1111,7 @@ def estimate_cutoff_ratio(
     combustion_efficiency: ArrayLike = 1.0,
     gamma: ArrayLike = GAMMA_AIR,
 ) -> tuple[FloatArray, StatusArray]:
-    """Cut-off ratio of the ideal Diesel (or dual) cycle from fuel per cycle and charge.
+    r"""Cut-off ratio of the ideal Diesel (or dual) cycle from fuel per cycle and charge.
 
     Parameters
     ----------
@@ -1043,6 +1140,11 @@ def estimate_cutoff_ratio(
 
     Notes
     -----
+    .. math::
+
+        r_c = \frac{T_{3b}}{T_{3a}}, \qquad \text{constant } c_p:\;
+        r_c = 1 + \frac{q}{c_p T_1 r^{\gamma - 1}}
+
     Method: the heat per kg of trapped charge q = eta_comb m_f,cyc LHV / m_ch,cyc (eq. 12) is
     added to the ideal cycle after isentropic compression from the receiver state by r; at
     constant pressure (Diesel), or at constant volume up to the measured peak pressure and

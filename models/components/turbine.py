@@ -32,7 +32,7 @@ __all__ = ["TURBINE_EFFICIENCY_BAND", "TurbineState", "turbine", "turbine_exit_t
 FloatArray = NDArray[np.float64]
 StatusArray = NDArray[np.uint32]
 
-#: Plausible turbine isentropic efficiency on the heat-balance inlet temperature [1]
+#: Plausible turbine isentropic efficiency on the heat-balance inlet temperature [-]
 #: (common practice); outside it ``EFFICIENCY_IMPLAUSIBLE`` is set as a warning.
 TURBINE_EFFICIENCY_BAND: tuple[float, float] = (0.80, 0.95)
 
@@ -45,7 +45,7 @@ class TurbineState:
     ----------
     T4s : isentropic exhaust temperature [K]
     h3, h4, h4s : enthalpies [J/kg gas] (sensible, real gas)
-    isentropic_efficiency : eta_t [1]
+    isentropic_efficiency : eta_t [-]
     specific_work : w_t = h3 - h4 [J/kg gas]
     status : Reason bits
     """
@@ -68,7 +68,7 @@ def turbine(
     *,
     h3: ArrayLike | None = None,
 ) -> TurbineState:
-    """Turbine performance from inlet and exhaust states.
+    r"""Turbine performance from inlet and exhaust states.
 
     Parameters
     ----------
@@ -88,9 +88,19 @@ def turbine(
 
     Notes
     -----
+    .. math::
+
+        \eta_t = \frac{h_3 - h_4}{h_3 - h(T_{4s}, p_4)}, \qquad s(T_{4s}, p_4) = s(T_3, p_3),
+        \qquad w_t = h_3 - h_4
+
     Errors (NaN): INPUT_MISSING, INPUT_NONPHYSICAL, PRESSURE_RATIO_INVALID (p3 <= p4),
     NOT_CONVERGED, EFFICIENCY_OUT_OF_RANGE.  Warning: EFFICIENCY_IMPLAUSIBLE outside
     :data:`TURBINE_EFFICIENCY_BAND`.
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, section 2.1.
     """
     T3a, p3a, T4a, p4a = (np.asarray(v, dtype=np.float64) for v in (T3, p3, T4, p4))
     shape = np.broadcast(T3a, p3a, T4a, p4a, exhaust.M).shape
@@ -138,9 +148,20 @@ def turbine_exit_temperature(
     p4: ArrayLike,
     isentropic_efficiency: ArrayLike,
 ) -> tuple[FloatArray, StatusArray]:
-    """Forward: exhaust temperature [K] from the inlet state and eta_t.
+    r"""Forward: exhaust temperature [K] from the inlet state and eta_t.
 
     ``h4 = h3 - eta_t (h3 - h4s)``, then T4 from h4 at p4 (Newton, real gas).
+
+    Notes
+    -----
+    .. math::
+
+        h(T_4, p_4) = h_3 - \eta_t \left(h_3 - h(T_{4s}, p_4)\right)
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, section 2.1.
     """
     T4s, st = exhaust.isentropic_T(T3, p3, p4, real_gas=True)
     h3 = exhaust.h_real(T3, p3)

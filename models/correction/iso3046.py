@@ -254,7 +254,7 @@ def indicated_power_ratio(
 def power_adjustment_factor(
     indicated_power_ratio: ArrayLike, mechanical_efficiency: ArrayLike
 ) -> tuple[FloatArray, StatusArray]:
-    """Power adjustment factor alpha = k - 0.7 (1 - k)(1/eta_m - 1), eq. (2).
+    r"""Power adjustment factor alpha = k - 0.7 (1 - k)(1/eta_m - 1), eq. (2).
 
     Parameters
     ----------
@@ -272,6 +272,10 @@ def power_adjustment_factor(
 
     Notes
     -----
+    .. math::
+
+        \alpha = k - 0.7\,(1 - k) \left(\frac{1}{\eta_m} - 1\right)
+
     Friction power held at FRICTION_SHARE of its reference value, indicated efficiency held.
 
     References
@@ -301,7 +305,13 @@ def power_adjustment_factor(
 def fuel_consumption_adjustment_factor(
     indicated_power_ratio: ArrayLike, power_adjustment_factor: ArrayLike
 ) -> FloatArray:
-    """Fuel consumption adjustment factor beta = k / alpha [-], eq. (3) (NaN propagates).
+    r"""Fuel consumption adjustment factor beta = k / alpha [-], eq. (3) (NaN propagates).
+
+    Notes
+    -----
+    .. math::
+
+        \beta = \frac{k}{\alpha}
 
     References
     ----------
@@ -355,7 +365,7 @@ def iso3046_correction(
     brake_heat_rate: ArrayLike = np.nan,
     reference: Iso3046Reference = STANDARD_REFERENCE,
 ) -> Iso3046Correction:
-    """Brake power and specific fuel consumption at site, corrected to reference conditions.
+    r"""Brake power and specific fuel consumption at site, corrected to reference conditions.
 
     Parameters
     ----------
@@ -382,6 +392,10 @@ def iso3046_correction(
 
     Notes
     -----
+    .. math::
+
+        P_r = \frac{P_x}{\alpha}, \qquad b_r = \frac{b_x}{\beta}, \qquad B_r = \frac{B_x}{k}
+
     P_r = P_x / alpha, b_r = b_x / beta, eqs. (1)-(4) of the module.  The method adjusts the
     power an engine can *deliver*: it is meaningful at full (declared) load.  At part load the
     corrected power answers "what would this fuel rack give at reference conditions" only in

@@ -46,20 +46,31 @@ StatusArray = NDArray[np.uint32]
 def air_standard_brayton_efficiency(
     pressure_ratio: ArrayLike, gamma: ArrayLike = 1.4
 ) -> tuple[FloatArray, StatusArray]:
-    """Thermal efficiency of the ideal air-standard Brayton cycle (cold-air standard).
+    r"""Thermal efficiency of the ideal air-standard Brayton cycle (cold-air standard).
 
     Parameters
     ----------
     pressure_ratio : array_like
-        Compressor pressure ratio r = p2/p1 [1], > 1.
+        Compressor pressure ratio r = p2/p1 [-], > 1.
     gamma : array_like, optional
-        Ratio of specific heats [1], > 1 (default 1.4, cold air).
+        Ratio of specific heats [-], > 1 (default 1.4, cold air).
 
     Returns
     -------
     eta : ndarray
-        ``1 - r**(-(gamma - 1)/gamma)`` [1]; NaN where r <= 1 or gamma <= 1.
+        ``1 - r**(-(gamma - 1)/gamma)`` [-]; NaN where r <= 1 or gamma <= 1.
     status : ndarray of uint32
+
+    Notes
+    -----
+    .. math::
+
+        \eta = 1 - r^{-(\gamma - 1)/\gamma}
+
+    References
+    ----------
+    .. [1] Y. A. Çengel, M. A. Boles, *Thermodynamics: An Engineering Approach*, 8th ed.,
+       McGraw-Hill, 2015, section 9-8 (ideal Brayton cycle, cold-air-standard).
 
     Examples
     --------
@@ -81,7 +92,7 @@ def air_standard_brayton_efficiency(
 
 
 def carnot_efficiency(T_cold: ArrayLike, T_hot: ArrayLike) -> tuple[FloatArray, StatusArray]:
-    """Carnot efficiency between two temperatures.
+    r"""Carnot efficiency between two temperatures.
 
     Parameters
     ----------
@@ -93,8 +104,19 @@ def carnot_efficiency(T_cold: ArrayLike, T_hot: ArrayLike) -> tuple[FloatArray, 
     Returns
     -------
     eta : ndarray
-        ``1 - T_cold / T_hot`` [1].
+        ``1 - T_cold / T_hot`` [-].
     status : ndarray of uint32
+
+    Notes
+    -----
+    .. math::
+
+        \eta_{Carnot} = 1 - \frac{T_{cold}}{T_{hot}}
+
+    References
+    ----------
+    .. [1] Y. A. Çengel, M. A. Boles, *Thermodynamics: An Engineering Approach*, 8th ed.,
+       McGraw-Hill, 2015, section 6-10.
 
     Examples
     --------
@@ -124,9 +146,9 @@ class BraytonCycle:
     T4s, T4 : turbine isentropic and actual exhaust temperature [K]
     compressor_work, turbine_work, net_work : [J/kg air]
     heat_input : [J/kg air] (h3 - h2 for air standard, f LHV with fuel)
-    back_work_ratio : compressor_work / turbine_work [1]
-    efficiency : net_work / heat_input [1]
-    fuel_air_ratio : [1] (0 for air standard)
+    back_work_ratio : compressor_work / turbine_work [-]
+    efficiency : net_work / heat_input [-]
+    fuel_air_ratio : [-] (0 for air standard)
     status : Reason bits
     """
 
@@ -157,7 +179,7 @@ def brayton_cycle(
     fuel_enthalpy: ArrayLike = 0.0,
     real_gas: bool = True,
 ) -> BraytonCycle:
-    """Compute a simple Brayton cycle with variable properties (ideal when both efficiencies are 1).
+    r"""Compute a simple Brayton cycle with variable properties (ideal when both efficiencies 1).
 
     Parameters
     ----------
@@ -166,11 +188,11 @@ def brayton_cycle(
     T1, p1 : array_like
         Compressor inlet temperature [K] and pressure [Pa].
     pressure_ratio : array_like
-        r = p2/p1 [1]; the turbine expands back to p1 (no pressure losses).
+        r = p2/p1 [-]; the turbine expands back to p1 (no pressure losses).
     T3 : array_like
         Turbine inlet temperature [K].
     compressor_efficiency, turbine_efficiency : array_like, optional
-        Isentropic efficiencies [1] (default 1: the ideal cycle).
+        Isentropic efficiencies [-] (default 1: the ideal cycle).
     fuel : FuelProperties, optional
         None: air-standard cycle, heat added to the air itself.  Given: internal combustion of
         this fuel (complete, eta_b = 1), the turbine expands the exhaust gas and the heat
@@ -187,10 +209,22 @@ def brayton_cycle(
 
     Notes
     -----
+    .. math::
+
+        h_2 = h_1 + \frac{h_{2s} - h_1}{\eta_c}, \quad h_4 = h_3 - \eta_t (h_3 - h_{4s}), \quad
+        \eta = \frac{w_t - w_c}{q_{in}}
+
     ``T2s``: s(T2s, p2) = s(T1, p1); ``h2 = h1 + (h2s - h1)/eta_c``; with fuel
     ``h2 + f (h_f + LHV) = (1 + f) h_g(T3)`` solved for f in closed form (exhaust
     properties are linear in f per kg of air); ``T4s``: s(T4s, p1) = s(T3, p2);
     ``h4 = h3 - eta_t (h3 - h4s)``; ``eta = (w_t - w_c) / q_in``.
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, ch. 2.
+    .. [2] Y. A. Çengel, M. A. Boles, *Thermodynamics: An Engineering Approach*, 8th ed.,
+       McGraw-Hill, 2015, section 9-8.
 
     Examples
     --------

@@ -601,7 +601,7 @@ def otto_cycle(
     gamma: ArrayLike = GAMMA_AIR,
     gas_constant: ArrayLike = R_DRY_AIR,
 ) -> ReciprocatingCycle:
-    """Ideal Otto cycle (all heat added at constant volume).
+    r"""Ideal Otto cycle (all heat added at constant volume).
 
     Parameters
     ----------
@@ -636,6 +636,10 @@ def otto_cycle(
 
     Notes
     -----
+    .. math::
+
+        u(T_3) = u(T_2) + q, \qquad \eta_{Otto} = 1 - r^{1 - \gamma} \;\text{(constant } c_v)
+
     Equations (1)-(3) of the module.  With constant specific heats
     ``T2 = T1 r^(gamma-1)``, ``T3 = T2 + q/cv``, ``T4 = T3 r^(1-gamma)`` and the efficiency
     equals :func:`otto_efficiency`; with a mixture it falls as the heat input rises (cv grows
@@ -680,7 +684,7 @@ def diesel_cycle(
     gamma: ArrayLike = GAMMA_AIR,
     gas_constant: ArrayLike = R_DRY_AIR,
 ) -> ReciprocatingCycle:
-    """Ideal Diesel cycle (all heat added at constant pressure).
+    r"""Ideal Diesel cycle (all heat added at constant pressure).
 
     Parameters
     ----------
@@ -714,6 +718,10 @@ def diesel_cycle(
 
     Notes
     -----
+    .. math::
+
+        T_3 = T_2 + q / c_p, \quad r_c = T_3 / T_2, \quad T_4 = T_3 (r_c / r)^{\gamma - 1}
+
     Constant specific heats: ``T3 = T2 + q/cp`` (so ``rc = 1 + q/(cp T2)``),
     ``T4 = T3 (rc/r)^(gamma-1)``, efficiency :func:`diesel_efficiency`.  With a mixture,
     ``h(T3) = h(T2) + q``.
@@ -754,7 +762,7 @@ def dual_cycle(
     gamma: ArrayLike = GAMMA_AIR,
     gas_constant: ArrayLike = R_DRY_AIR,
 ) -> ReciprocatingCycle:
-    """Ideal dual (limited-pressure) cycle: heat at constant volume, then constant pressure.
+    r"""Ideal dual (limited-pressure) cycle: heat at constant volume, then constant pressure.
 
     Parameters
     ----------
@@ -794,6 +802,11 @@ def dual_cycle(
 
     Notes
     -----
+    .. math::
+
+        T_{3a} = T_2 \frac{p_{peak}}{p_2}, \quad u(T_{3a}) = u(T_2) + q_v, \quad
+        h(T_{3b}) = h(T_{3a}) + (q - q_v)
+
     Heat form: T3a = T2 p_peak/p2 and ``u(T3a) = u(T2) + q_v``; the rest, q - q_v, raises
     h at constant pressure to T3b.  A peak pressure below p2 gives the Diesel cycle, one the
     heat input cannot reach gives the Otto cycle; both set ``PEAK_PRESSURE_CLIPPED``

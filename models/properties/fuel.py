@@ -203,7 +203,7 @@ class FuelProperties:
 def stoichiometric_air_ratio(
     fuel: FuelProperties, air_mass_fractions: Mapping[str, float] | ArrayLike
 ) -> FloatArray:
-    """Stoichiometric air of ``fuel`` for an air of given composition [kg air / kg fuel].
+    r"""Stoichiometric air of ``fuel`` for an air of given composition [kg air / kg fuel].
 
     Parameters
     ----------
@@ -214,6 +214,18 @@ def stoichiometric_air_ratio(
     Returns
     -------
     ndarray [kg/kg]  ``-product_delta[..., O2] / y_O2,air``
+
+    Notes
+    -----
+    .. math::
+
+        A_{st} = \frac{\nu_{O_2}}{y_{O_2,air}}
+
+    References
+    ----------
+    .. [1] ISO 6976:2016, Natural gas — Calculation of calorific values, density, relative
+       density and Wobbe indices from composition, clause 5 (composition); complete combustion
+       (common practice).
     """
     if isinstance(air_mass_fractions, Mapping):
         y_o2 = np.asarray(air_mass_fractions["O2"], dtype=np.float64)
@@ -353,7 +365,7 @@ def iso6976(
     metering_temperature_C: float = 15.0,
     pressure: float = 101325.0,
 ) -> dict[str, FloatArray]:
-    """Calorific values, density, relative density and Wobbe indices per ISO 6976:2016.
+    r"""Calorific values, density, relative density and Wobbe indices per ISO 6976:2016.
 
     Parameters
     ----------
@@ -374,6 +386,11 @@ def iso6976(
 
     Notes
     -----
+    .. math::
+
+        H_{c,G} = \sum_i x_i H_{c,G,i}, \quad H_{c,N} = H_{c,G} - \frac{\sum_i x_i b_i}{2} L^\circ,
+        \quad Z = 1 - \frac{p_2}{p_0} \left(\sum_i x_i s_i\right)^2, \quad W = \frac{H_v}{\sqrt{G}}
+
     With mole fractions x_i (ISO 6976:2016 clauses 5 to 9):
 
     * M = Σ x_i M_i;  Z(t2, p2) = 1 − (p2/p0) (Σ x_i s_i(t2))², p0 = 101.325 kPa
@@ -441,7 +458,7 @@ def gas_fuel(
     wobbe_combustion_temperature: float = 288.15,
     on_invalid: OnInvalid = "raise",
 ) -> FuelProperties:
-    """Properties of a gaseous fuel from its molar composition (ISO 6976:2016).
+    r"""Properties of a gaseous fuel from its molar composition (ISO 6976:2016).
 
     Parameters
     ----------
@@ -467,6 +484,11 @@ def gas_fuel(
 
     Notes
     -----
+    .. math::
+
+        \nu_{O_2} = \sum_i x_i \left(c_i + \frac{h_i}{4} + s_i - \frac{o_i}{2}\right), \qquad
+        A_{st} = \frac{\nu_{O_2} M_{O_2} / M}{y_{O_2,air}}
+
     Heating values per :func:`iso6976`.  Complete combustion: C → CO2, H → H2O, S → SO2,
     N → N2; Ar, He pass through; O2 demand per mol fuel = Σ x_i (c_i + h_i/4 + s_i − o_i/2).
     ``stoichiometric_air`` = O2 demand [kg/kg] / y_O2 of :data:`STANDARD_DRY_AIR`.
@@ -550,7 +572,7 @@ def liquid_fuel(  # noqa: PLR0917 (positional order is the published API)
     *,
     oxygen_mass_fraction: ArrayLike = 0.0,
 ) -> FuelProperties:
-    """Properties of a liquid fuel from its heating value and elemental analysis.
+    r"""Properties of a liquid fuel from its heating value and elemental analysis.
 
     Parameters
     ----------
@@ -568,6 +590,12 @@ def liquid_fuel(  # noqa: PLR0917 (positional order is the published API)
 
     Notes
     -----
+    .. math::
+
+        HHV = LHV + 8.937\, w_H\, L^\circ(25\,^\circ C), \qquad
+        \nu_{O_2} = M_{O_2} \left(\frac{w_C}{M_C} + \frac{w_H}{4 M_H} + \frac{w_S}{M_S}
+            - \frac{w_O}{2 M_O}\right)
+
     Water formed [kg/kg fuel] = w_H · M_H2O / (2 M_H) = 8.937 w_H (≈ 9 w_H);
     HHV = LHV + 8.937 w_H · L°(25 °C) with L° = 2443.1 kJ/kg (:data:`LATENT_HEAT_WATER_25C`).
     O2 demand [kg/kg] = M_O2 (w_C/M_C + w_H/(4 M_H) + w_S/M_S − w_O/(2 M_O)).

@@ -88,7 +88,7 @@ _SUB_B = (0.333333333e-2, 0.120666667e1, 0.170333333e1)
 
 
 def saturation_pressure(T: ArrayLike) -> FloatArray:
-    """Saturation pressure of water [Pa] over liquid (T >= 273.16 K) or ice (below).
+    r"""Saturation pressure of water [Pa] over liquid (T >= 273.16 K) or ice (below).
 
     Parameters
     ----------
@@ -97,6 +97,15 @@ def saturation_pressure(T: ArrayLike) -> FloatArray:
 
     Notes
     -----
+    .. math::
+
+        \ln\frac{p}{p_c} = \frac{T_c}{T}\left(a_1 \vartheta + a_2 \vartheta^{1.5} + a_3 \vartheta^3
+        + a_4 \vartheta^{3.5} + a_5 \vartheta^4 + a_6 \vartheta^{7.5}\right),
+        \quad \vartheta = 1 - T/T_c
+
+        \ln\frac{p}{p_t} = \theta^{-1} \sum_i a_i \theta^{b_i},
+        \quad \theta = T / T_t \;\text{(ice)}
+
     Liquid, Wagner & Pruss (2002) eq. 2.5 [1]_, ϑ = 1 - T/T_c::
 
         ln(p/p_c) = (T_c/T)(a1 ϑ + a2 ϑ^1.5 + a3 ϑ³ + a4 ϑ^3.5 + a5 ϑ⁴ + a6 ϑ^7.5)
@@ -104,6 +113,12 @@ def saturation_pressure(T: ArrayLike) -> FloatArray:
     Ice Ih, IAPWS R14-08(2011) [2]_, θ = T/T_t::
 
         ln(p/p_t) = θ⁻¹ Σ a_i θ^(b_i)
+
+    References
+    ----------
+    .. [1] W. Wagner, A. Pruss, "The IAPWS formulation 1995 for the thermodynamic properties of
+       ordinary water substance", J. Phys. Chem. Ref. Data 31 (2002) 387-535, eq. 2.5.
+    .. [2] IAPWS R14-08(2011), W. Wagner et al., J. Phys. Chem. Ref. Data 40 (2011) 043103.
     """
     T = _f(T)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
@@ -127,13 +142,22 @@ def saturation_pressure(T: ArrayLike) -> FloatArray:
 
 
 def enhancement_factor(T: ArrayLike, p: ArrayLike) -> FloatArray:
-    """Water-vapour enhancement factor f(T, p) of moist air [-].
+    r"""Water-vapour enhancement factor f(T, p) of moist air [-].
 
     Notes
     -----
+    .. math::
+
+        f = 1.00062 + 3.14 \times 10^{-8}\, p + 5.6 \times 10^{-7}\, t^2, \quad t = T - 273.15\,K
+
     CIPM-2007 [3]_: f = 1.00062 + 3.14e-8 p + 5.6e-7 t², p [Pa], t [°C].  Stated for
     600-1100 hPa and 15-27 °C; used here over the whole ambient range (the factor stays within
     about 1.003-1.006, small beside RH sensor uncertainty).
+
+    References
+    ----------
+    .. [1] A. Picard, R. S. Davis, M. Glaeser, K. Fujii, "Revised formula for the density of
+       moist air (CIPM-2007)", Metrologia 45 (2008) 149-155.
     """
     t = _f(T) - 273.15
     out: FloatArray = 1.00062 + 3.14e-8 * _f(p) + 5.6e-7 * t * t
@@ -143,7 +167,7 @@ def enhancement_factor(T: ArrayLike, p: ArrayLike) -> FloatArray:
 def humid_air(
     T: ArrayLike, p: ArrayLike, RH: ArrayLike, dry: ArrayLike = DRY_AIR
 ) -> tuple[FloatArray, StatusArray]:
-    """Mole fractions (..., n_species) of humid air from T [K], p [Pa], RH [-].
+    r"""Mole fractions (..., n_species) of humid air from T [K], p [Pa], RH [-].
 
     Parameters
     ----------
@@ -167,6 +191,11 @@ def humid_air(
 
     Notes
     -----
+    .. math::
+
+        x_w = RH\, f(T, p)\, \frac{p_{sat}(T)}{p}, \qquad \mathbf{x} = (1 - x_w)\, \mathbf{x}_{dry}
+        + x_w\, \mathbf{e}_{H_2O}
+
     x_w = RH · f(T, p) · p_sat(T) / p, x = (1 - x_w) x_dry + x_w e_H2O, with p_sat from
     :func:`saturation_pressure` and f from :func:`enhancement_factor`.
 
@@ -174,6 +203,13 @@ def humid_air(
     ------
     ModelInputError
         ``dry`` is not a valid composition.
+
+    References
+    ----------
+    .. [1] W. Wagner, A. Pruss, J. Phys. Chem. Ref. Data 31 (2002) 387-535, eq. 2.5.
+    .. [2] A. Picard et al., "Revised formula for the density of moist air (CIPM-2007)",
+       Metrologia 45 (2008) 149-155.
+    .. [3] ISO 2533:1975, Standard Atmosphere, Table 1 (dry air).
     """
     T = _f(T)
     p = _f(p)

@@ -802,8 +802,10 @@ class Fluid:
         Notes
         -----
         The real-gas term enters the function, not the derivative (its share of cp, frozen
-        at the first guess, is below 1e-3), so the last step's error is below 1e-3 of the
-        step criterion.
+        at the first guess, is below 1e-3 from 400 K up), so the last step's error is below
+        1e-3 of the step criterion (measured: below 3e-6 K from 400 K at 2 MPa).  Near
+        ambient temperature at 2 MPa the share is about 1 % and the error of the last step
+        grows to about 5e-4 K with a first guess 60 K off (measured).
         """
         vc = None if p is None else departure_coefficients(DEPARTURE_H, p)
         cres = 0.0 if p is None else self.R * departure(DEPARTURE_CP, T, p)

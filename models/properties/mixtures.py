@@ -633,7 +633,7 @@ class Mixture:
 # Real-gas departure
 # --------------------------------------------------------------------------------------------
 def residual(T: ArrayLike, p: ArrayLike, mix: Mixture) -> tuple[FloatArray, FloatArray]:
-    """Real-gas departure (h - h_ig) [J/kg] and (s - s_ig) [J/(kg K)] at the same T, p.
+    r"""Real-gas departure (h - h_ig) [J/kg] and (s - s_ig) [J/(kg K)] at the same T, p.
 
     Parameters
     ----------
@@ -646,6 +646,10 @@ def residual(T: ArrayLike, p: ArrayLike, mix: Mixture) -> tuple[FloatArray, Floa
 
     Notes
     -----
+    .. math::
+
+        h - h^{ig} = R T\, d_h(T, p), \qquad s - s^{ig} = R\, d_s(T, p)
+
     Pressure-explicit truncated virial form fitted to the Lemmon et al. (2000) air equation of
     state [2]_ (fit in ``tools/gen_thermo_data.py``), with τ = 300 K / T, π = p / 1 MPa::
 
@@ -656,6 +660,11 @@ def residual(T: ArrayLike, p: ArrayLike, mix: Mixture) -> tuple[FloatArray, Floa
     The molar departure of air is applied to any mixture (corresponding states on a molar
     basis): right for dry and humid air at compressor conditions, an approximation for
     combustion gas, where at turbine-inlet temperatures the departure is small anyway.
+
+    References
+    ----------
+    .. [1] E. W. Lemmon, R. T. Jacobsen, S. G. Penoncello, D. G. Friend, J. Phys. Chem. Ref.
+       Data 29 (2000) 331-385 (the equation of state the fit follows).
     """
     T = _f(T)
     p = _f(p)
@@ -672,7 +681,20 @@ def residual(T: ArrayLike, p: ArrayLike, mix: Mixture) -> tuple[FloatArray, Floa
 
 
 def compressibility(T: ArrayLike, p: ArrayLike) -> FloatArray:
-    """Compressibility factor Z = p/(ρ R T) of air [-] from the fit of :func:`residual`."""
+    r"""Compressibility factor Z = p/(ρ R T) of air [-] from the fit of :func:`residual`.
+
+    Notes
+    -----
+    .. math::
+
+        Z = 1 + \pi \sum_i b_i \tau^i + \pi^2 \sum_i c_i \tau^i, \quad \tau = T_s / T,\;
+        \pi = p / p_s
+
+    References
+    ----------
+    .. [1] E. W. Lemmon, R. T. Jacobsen, S. G. Penoncello, D. G. Friend, J. Phys. Chem. Ref.
+       Data 29 (2000) 331-385 (the equation of state the fit follows).
+    """
     T = _f(T)
     p = _f(p)
     with np.errstate(invalid="ignore", divide="ignore"):

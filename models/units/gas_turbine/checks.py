@@ -328,7 +328,7 @@ def fuel_temperature_used(Tf: FloatArray) -> FloatArray:
 
 
 def fuel_enthalpy(fuel: FuelProperties, Tf: FloatArray) -> FloatArray:
-    """Sensible enthalpy of the fuel [J/kg], 0 at 298.15 K.
+    r"""Sensible enthalpy of the fuel [J/kg], 0 at 298.15 K.
 
     Parameters
     ----------
@@ -341,6 +341,17 @@ def fuel_enthalpy(fuel: FuelProperties, Tf: FloatArray) -> FloatArray:
     -------
     ndarray
         h_f(Tf) - h_f(298.15 K) [J/kg]; exactly 0 when every Tf is 298.15 K.
+
+    Notes
+    -----
+    .. math::
+
+        h_f(T_f) = \int_{298.15\,K}^{T_f} c_{p,f}\, dT
+
+    References
+    ----------
+    .. [1] B. J. McBride, S. Gordon, M. A. Reno, NASA TM-4513, 1993 (gas fuels).
+    .. [2] ISO 6976:2016 (reference temperature 25 °C of the heating values).
     """
     if np.all(Tf == mixtures.T_REF):
         return np.zeros(Tf.shape)

@@ -146,12 +146,18 @@ class ReferenceAmbient:
 
 
 def reference_ambient() -> ReferenceAmbient:
-    """Humid air at the reference conditions of :mod:`models.correction.gas_turbine`.
+    r"""Humid air at the reference conditions of :mod:`models.correction.gas_turbine`.
 
     Returns
     -------
     ReferenceAmbient
         15 °C, 101.325 kPa, 60 % RH (ISO 2314 / ISO 3977-2).
+
+    References
+    ----------
+    .. [1] ISO 2314:2009, Gas turbines — Acceptance tests.
+    .. [2] ISO 3977-2:1997, Gas turbines — Procurement — Part 2: Standard reference conditions
+       and ratings.
     """
     y_w = float(
         humid_air.water_mass_fraction(

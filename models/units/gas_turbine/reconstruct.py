@@ -626,7 +626,7 @@ def reconstruct(
     correction_method: Literal["auto", "model", "curve"] = "auto",
     chunk_size: int = _CHUNK,
 ) -> ComputeOutput:
-    """Reconstruct the actual Brayton cycle of a gas turbine from plant measurements.
+    r"""Reconstruct the actual Brayton cycle of a gas turbine from plant measurements.
 
     Parameters
     ----------
@@ -635,7 +635,7 @@ def reconstruct(
     ambient_pressure : array_like
         p0 [Pa], absolute.
     ambient_relative_humidity : array_like
-        RH [1], fraction 0..1.
+        RH [-], fraction 0..1.
     compressor_inlet_temperature, compressor_inlet_pressure : array_like
         T1 [K], p1 [Pa].
     compressor_discharge_temperature, compressor_discharge_pressure : array_like
@@ -655,7 +655,7 @@ def reconstruct(
         T_f [K]; NaN elements (or None) use :data:`DEFAULT_FUEL_TEMPERATURE`.
     generator_efficiency, combustor_pressure_loss, combustion_efficiency,
     casing_heat_loss_fraction, mechanical_loss : array_like, optional
-        Unit parameters (:data:`DEFAULT_PARAMETERS`): [1], [1 of p2], [1], [1 of m_f LHV], [W].
+        Unit parameters (:data:`DEFAULT_PARAMETERS`): [-], [-] (of p2), [-], [-] (of m_f LHV), [W].
     corrections : CorrectionTables, optional
         Unit-supplied correction curves for the curve-based correction.
     correction_method : {"auto", "model", "curve"}
@@ -675,10 +675,27 @@ def reconstruct(
 
     Notes
     -----
+    .. math::
+
+        m_a = \frac{m_f \left(h_f + (\eta_b - c_{loss}) LHV - h_{pd}(T_4, p_4)\right) - P_{shaft}}
+            {h_a(T_4, p_4) - h_a(T_1, p_1)}
+
+        \eta_c = \frac{h_{2s} - h_1}{h_2 - h_1}, \qquad \eta_t = \frac{h_3 - h_4}{h_3 - h_{4s}},
+        \qquad HR = \frac{3600\, m_f\, LHV}{P_{gen}}
+
     Equations in the module docstring and ``docs/method.md``.  Each result is NaN only where
     its own inputs fail: a missing discharge temperature leaves the heat rate and the
     heat-balance air flow intact.  Warnings (value kept): EFFICIENCY_IMPLAUSIBLE,
     HEAT_RATE_IMPLAUSIBLE, HUMIDITY_SATURATED, CORRECTION_UNAVAILABLE.
+
+    References
+    ----------
+    .. [1] ASME PTC 22-2014, Performance Test Code on Gas Turbines, section 5 (heat balance
+       determination of exhaust flow).
+    .. [2] ISO 2314:2009, Gas turbines — Acceptance tests (reference turbine inlet
+       temperature).
+    .. [3] H. I. H. Saravanamuttoo et al., *Gas Turbine Theory*, 7th ed., Pearson, 2017,
+       ch. 2 and 9.
 
     Examples
     --------

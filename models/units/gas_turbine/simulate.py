@@ -180,30 +180,31 @@ def simulate(
     casing_heat_loss_fraction: ArrayLike = DEFAULT_PARAMETERS["casing_heat_loss_fraction"],
     mechanical_loss: ArrayLike = DEFAULT_PARAMETERS["mechanical_loss"],
 ) -> tuple[dict[str, FloatArray], StatusArray]:
-    """Forward model: component health and operating point -> the measurements of the contract.
+    r"""Forward model: component health and operating point -> the measurements of the contract.
 
     Parameters
     ----------
     ambient_temperature, ambient_pressure, ambient_relative_humidity : array_like
-        T0 [K], p0 [Pa], RH [1].  The compressor inlet temperature is T0.
+        T0 [K], p0 [Pa], RH [-].  The compressor inlet temperature is T0.
     pressure_ratio : array_like
-        Compressor pressure ratio p2/p1 [1].
+        Compressor pressure ratio p2/p1 [-].
     compressor_isentropic_efficiency, turbine_isentropic_efficiency : array_like
-        eta_c, eta_t [1].
+        eta_c, eta_t [-].
     turbine_inlet_temperature : array_like
         T3 [K] (heat-balance value).
     air_mass_flow : array_like
         m_a [kg/s].
     fuel : FuelProperties
     inlet_pressure_loss : array_like, optional
-        (p0 - p1)/p0 [1] (default 0).
+        (p0 - p1)/p0 [-] (default 0).
     exhaust_pressure_loss : array_like, optional
-        (p4 - p0)/p0 [1] (default 0).
+        (p4 - p0)/p0 [-] (default 0).
     fuel_temperature : array_like, optional
         T_f [K] (default 298.15 K).
     generator_efficiency, combustor_pressure_loss, combustion_efficiency,
     casing_heat_loss_fraction, mechanical_loss : array_like, optional
-        As :func:`reconstruct`.
+        Unit parameters as for the reconstruction: [-], [-] (of p2), [-], [-] (of m_f LHV),
+        [W].
 
     Returns
     -------
@@ -214,9 +215,24 @@ def simulate(
 
     Notes
     -----
+    .. math::
+
+        h_2 = h_1 + \frac{h_{2s} - h_1}{\eta_c}, \qquad
+        f = \frac{h_a(T_3, p_3) - h_2}{h_f + (\eta_b - c_{loss}) LHV - h_{pd}(T_3, p_3)}
+
+        h_4 = h_3 - \eta_t (h_3 - h_{4s}), \qquad
+        P_{gen} = \eta_{gen} \left(m_a (h_3 - h_4 - (h_2 - h_1)) - P_{mech}\right)
+
     The exact inverse of :func:`reconstruct` (same property kernel and balances): T2 from
     ``h2 = h1 + (h2s - h1)/eta_c``; fuel-air ratio in closed form from the combustor balance
     at the given T3; ``h4 = h3 - eta_t (h3 - h4s)``; ``P_gen = eta_gen (W_t - W_c - P_mech)``.
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, ch. 2.
+    .. [2] ASME PTC 22-2014, Performance Test Code on Gas Turbines, section 5 (heat balance
+       determination of exhaust flow).
     """
     T0 = np.atleast_1d(np.asarray(ambient_temperature, dtype=np.float64))
     shape = np.broadcast_shapes(

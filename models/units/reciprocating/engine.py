@@ -158,7 +158,7 @@ def simulate_engine(
     fuel_temperature: ArrayLike = 298.15,
     charge_air_coolant_temperature: ArrayLike = 298.0,
 ) -> tuple[dict[str, FloatArray], StatusArray]:
-    """Plant-like sensor values of a turbocharged engine-generator set.
+    r"""Plant-like sensor values of a turbocharged engine-generator set.
 
     Parameters
     ----------
@@ -211,11 +211,22 @@ def simulate_engine(
 
     Notes
     -----
+    .. math::
+
+        m_f = \frac{P_b}{\eta_b LHV}, \quad m_a = \lambda A_{st} m_f, \quad
+        m_a h_a(T_0) + m_f (h_f + \eta_{comb} LHV) = P_b + \sum Q + m_g h_g(T_{exh})
+
     m_f = P_b / (eta_b LHV), P_b = P_gen / eta_gen + P_mech; m_a = lambda A_st m_f (humid
     air); receiver density m_ch / (eta_v V_d n_cyc) and pressure p = rho Z R T; compressor
     outlet p_rec / (1 - dp_ic), outlet temperature from eta_c
     (:func:`models.components.compressor.compressor_discharge_temperature`); exhaust temperature
     from eq. (1) of the module; O2 from :func:`models.components.reciprocating.exhaust_oxygen`.
+
+    References
+    ----------
+    .. [1] J. B. Heywood, *Internal Combustion Engine Fundamentals*, 2nd ed., McGraw-Hill,
+       2018, ch. 2 and 4.
+    .. [2] ISO 3046-1:2002 (power, fuel consumption, reference conditions).
     """
     T0, p0, rh, Pg, w, eta_b, lam, eta_v, Tr, eta_c = (
         np.asarray(v, dtype=np.float64)
@@ -351,7 +362,7 @@ def reconstruct_engine(
     iso3046_exponents: Iso3046Exponents | None = None,
     mechanical_efficiency: ArrayLike = 0.85,
 ) -> EngineResult:
-    """Every figure of a reciprocating engine set from one batch of measurements.
+    r"""Every figure of a reciprocating engine set from one batch of measurements.
 
     Parameters
     ----------
@@ -405,6 +416,11 @@ def reconstruct_engine(
 
     Notes
     -----
+    .. math::
+
+        q_{in} = \frac{\eta_{comb}\, m_f\, LHV}{m_{ch}}, \qquad
+        \eta_{rel} = \frac{\eta_b}{\eta_{ideal}}
+
     Air flow: measured, else lambda from the exhaust O2 times A_st m_f.  The ideal cycles
     start at the receiver state (charge-air temperature and pressure) with
     q_in = eta_comb m_f LHV / m_ch; air standard with gamma = 1.4 and R of dry air, the
