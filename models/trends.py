@@ -1,5 +1,9 @@
 """Degradation trends for maintenance planning: rates, wash steps, threshold forecasts, smoothing.
 
+Length (about 670 lines, above the project's 600): one function per published method (EWMA,
+wash-step detection, the piecewise degradation fit, the Fieller forecast) sharing the fit
+types; half of it is documentation.
+
 A corrected key performance indicator (KPI: corrected compressor isentropic efficiency,
 corrected power, corrected heat rate ...) drifts with fired hours.  Part of the loss is
 *recoverable* (compressor fouling, largely removed by a wash); the rest is *non-recoverable*

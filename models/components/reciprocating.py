@@ -1,5 +1,10 @@
 """Reciprocating engines: geometry, brake figures, stoichiometry, charge air, heat recovery.
 
+Length (about 1200 lines, above the project's 600): every engine-set component figure
+shares the engine geometry and one set of element-wise input checks; split by figure
+(geometry, stoichiometry, charge air, heat recovery) when the gas-engine and Diesel unit
+types are wired.
+
 Also the turbocharger compressor and the cut-off ratio from the fuel per cycle.
 
 Everything is SI: m, m3, kg, s, K, Pa (absolute), W, J/kg; engine speed is an angular speed

@@ -1,5 +1,9 @@
 """Fuel chemistry: heating values, Wobbe index, stoichiometric air and combustion products.
 
+Length (about 670 lines, above the project's 600): the ISO 6976 calculation, liquid fuels
+and the combustion products all fill one FuelProperties; half of it is documentation and
+the check values of the standard.
+
 Gas fuels follow ISO 6976:2016 (component table in :mod:`models.properties.iso6976_data`); liquid
 fuels are described by their lower heating value and C/H/S (optionally O) mass fractions.
 Everything is SI: J/mol, J/kg, J/m^3, kg/mol, K, Pa.  All functions are vectorised: each composition

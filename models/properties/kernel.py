@@ -1,8 +1,12 @@
 r"""The fast property kernel: ideal-gas mixture properties from coefficient rows, Newton solvers.
 
-Every ideal-gas property in ``models`` is evaluated here, once: :class:`models.properties.
-mixtures.Mixture` is a checked front over a :class:`Fluid`, and the gas-turbine reconstruction
-uses :class:`Fluid` objects directly.
+Length (about 900 lines, above the project's 600): the hot path of every property
+evaluation (rows, departure, Newton, Fluid) is kept in one module so that each piece can
+be read beside the others; about two thirds of it is documentation.
+
+Every ideal-gas property in ``models`` is evaluated here, once:
+:class:`models.properties.mixtures.Mixture` is a checked front over a :class:`Fluid`, and the
+gas-turbine reconstruction uses :class:`Fluid` objects directly.
 
 Coefficient rows
 ----------------

@@ -1,5 +1,8 @@
 """Ideal-gas mixture properties and the real-gas departure of air-like gases.
 
+Length (about 700 lines, above the project's 600): one class, the Mixture front, with its
+constructors, properties and three checked solvers; most of it is documentation.
+
 All quantities are SI: T [K], p [Pa] (absolute), h [J/kg], cp and s [J/(kg K)], molar mass
 [kg/mol], compositions as mole (``x``) or mass (``y``) fractions over
 :data:`models.properties.species.SPECIES` on the last axis.  Every function is vectorised and

@@ -1,5 +1,9 @@
 """Whole reciprocating engine: forward model and reconstruction from one batch of measurements.
 
+Length (about 670 lines, above the project's 600): the forward model and the
+reconstruction share one energy balance and must stay exact inverses of each other, so they
+are kept side by side.
+
 The forward model (:func:`simulate_engine`, plant-like sensor
 values from engine health, ambient and load) and the reconstruction
 (:func:`reconstruct_engine`, every figure of :mod:`models.components.reciprocating`,
