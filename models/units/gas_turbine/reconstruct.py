@@ -175,6 +175,23 @@ _SOURCE_LABELS = np.array(["measured", "heat_balance"])  # code 0: measured, 1: 
 # ============================================================================================
 # The steps of one block
 # ============================================================================================
+def _check_efficiency(
+    st: StatusArray, eta: FloatArray, bad: BoolArray, conv: BoolArray, band: tuple[float, float]
+) -> BoolArray:
+    """Flag a failed solve, an efficiency outside (0, 1] (both errors) and outside ``band``.
+
+    Returns the elements whose efficiency is not computable: ``bad`` or a failed check.
+    """
+    flag(st, ~conv & ~bad, Reason.NOT_CONVERGED)
+    bad = bad | ~conv
+    eff_bad = ~bad & ~((eta > 0) & (eta <= 1))
+    flag(st, eff_bad, Reason.EFFICIENCY_OUT_OF_RANGE)
+    bad |= eff_bad
+    lo, hi = band
+    flag(st, ~bad & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
+    return bad
+
+
 @dataclass(frozen=True, slots=True)
 class _Compressor:
     """Station 1 -> 2: the compressor of one block (step 1)."""
@@ -222,13 +239,7 @@ def _compressor_step(x: Inputs, st: StatusArray, groups: Groups) -> _Compressor:
     eta_c = (h2s - h1) / w_c
     eta_p = Rl / (air.phi(T2c) - phi1)
     g_c = x.g_amb | x.bT1 | x.bp1 | x.bT2 | x.bp2 | not_hot | pr_bad
-    flag(st, ~conv & ~g_c, Reason.NOT_CONVERGED)
-    g_c |= ~conv
-    eff_bad = ~g_c & ~((eta_c > 0) & (eta_c <= 1))
-    flag(st, eff_bad, Reason.EFFICIENCY_OUT_OF_RANGE)
-    g_c |= eff_bad
-    lo, hi = COMPRESSOR_EFFICIENCY_BAND
-    flag(st, ~g_c & ~((eta_c >= lo) & (eta_c <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
+    g_c = _check_efficiency(st, eta_c, g_c, conv, COMPRESSOR_EFFICIENCY_BAND)
     g_pr = x.bp1 | x.bp2 | pr_bad
     return _Compressor(air, y_w, T2c, p2c, PR, lnPR, T2s, h1, h2, h2s, w_c, eta_c, eta_p, g_c, g_pr)
 
@@ -326,13 +337,7 @@ def _hot_section_step(
     H4s = gasf.h(T4s, p4c)
     eta_t = (H3 - H4) / (H3 - H4s)
     g_t = g_cb | x.bT4 | x.bp4 | t_pr_bad
-    flag(st, ~conv4 & ~g_t, Reason.NOT_CONVERGED)
-    g_t |= ~conv4
-    t_eff_bad = ~g_t & ~((eta_t > 0) & (eta_t <= 1))
-    flag(st, t_eff_bad, Reason.EFFICIENCY_OUT_OF_RANGE)
-    g_t |= t_eff_bad
-    lo, hi = TURBINE_EFFICIENCY_BAND
-    flag(st, ~g_t & ~((eta_t >= lo) & (eta_t <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
+    g_t = _check_efficiency(st, eta_t, g_t, conv4, TURBINE_EFFICIENCY_BAND)
     W_c = w.ma * c.w_c
     W_t = w.ma * (H3 - H4)
     return _HotSection(p3, T3, H3, H4, g_cb, p4c, T4s, eta_t, g_t, W_c, W_t)
