@@ -225,4 +225,3 @@ def test_long_modules_say_why_at_their_top() -> None:
         if text.count("\n") > 620 and "Length (" not in head:
             unexplained.append(path.relative_to(ROOT).as_posix())
     assert unexplained == []
-
