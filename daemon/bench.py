@@ -8,9 +8,10 @@ The command
    sensor values with the independent Cantera forward model (``tests/cantera_engine.py``);
 2. resamples those to ``--snapshots`` snapshots with small sensor jitter (so the batch is not
    one point repeated), seeded by ``--seed``;
-3. times the vectorised reconstruction (``GAS_TURBINE.compute`` of ``models.gas_turbine``) on
-   the whole batch in a child process pinned to one CPU with ``OMP_NUM_THREADS``,
-   ``OPENBLAS_NUM_THREADS`` and ``MKL_NUM_THREADS`` set to 1 (best of ``--repeats``);
+3. times the vectorised reconstruction (``GAS_TURBINE.compute`` of
+   ``models.units.gas_turbine.schema``) on the whole batch in a child process pinned to one CPU
+   with ``OMP_NUM_THREADS``, ``OPENBLAS_NUM_THREADS`` and ``MKL_NUM_THREADS`` set to 1 (best of
+   ``--repeats``);
 4. times the per-snapshot Cantera reconstruction (``reconstruct_one``: the same equations, one
    Cantera property call after another) on the first ``--loop-sample`` snapshots;
 5. prints both rates, their ratio and the largest difference of the compressor and turbine
@@ -242,8 +243,8 @@ def make_snapshots(
 
 
 def _compute(measurements: Mapping[str, np.ndarray]) -> Any:
-    from models.fuel import gas_fuel
-    from models.gas_turbine import GAS_TURBINE
+    from models.properties.fuel import gas_fuel
+    from models.units.gas_turbine.schema import GAS_TURBINE
 
     fuel = gas_fuel(dict(BENCH_FUEL))
     return GAS_TURBINE.compute(measurements, fuel, dict(BENCH_PARAMETERS))
@@ -313,7 +314,7 @@ def _run_loop(
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeRemainingColumn
 
-    from models.fuel import gas_fuel
+    from models.properties.fuel import gas_fuel
 
     lhv = float(gas_fuel(dict(BENCH_FUEL)).lhv)
     out = {k: np.full(sample, np.nan) for k in _COMPARED}

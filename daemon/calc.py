@@ -41,7 +41,7 @@ from daemon.contract import (
 )
 from daemon.renames import add_renamed_option
 from models.status import WARNING_REASONS, ModelInputError, reason_names
-from models.unit_types import FieldSpec, UnitType
+from models.units.base import FieldSpec, UnitType
 
 __all__ = [
     "EXAMPLES",
@@ -511,7 +511,7 @@ def _read_input(name: str) -> str:
 def run(args: argparse.Namespace, unit_types: Mapping[str, UnitType] | None = None) -> int:
     """Run ``brayscope calc``; returns the exit code (0, 1 or 2, see the module docstring).
 
-    ``unit_types`` (name -> unit type) defaults to :func:`models.unit_types.builtin_unit_types`.
+    ``unit_types`` (name -> unit type) defaults to :func:`models.units.registry.builtin_unit_types`.
     A reader that closes the pipe early (``| head``) ends the command quietly with code 1.
     """
     try:
@@ -526,7 +526,7 @@ def run(args: argparse.Namespace, unit_types: Mapping[str, UnitType] | None = No
 
 def _run(args: argparse.Namespace, unit_types: Mapping[str, UnitType] | None) -> int:
     if unit_types is None:
-        from models.unit_types import builtin_unit_types
+        from models.units.registry import builtin_unit_types
 
         unit_types = builtin_unit_types()
     if args.example:

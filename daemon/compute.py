@@ -28,7 +28,7 @@ import numpy as np
 
 from daemon.types import Snapshot
 from models.status import WARNING_REASONS, ModelInputError, Reason, reason_names
-from models.unit_types import UnitType
+from models.units.base import UnitType
 
 __all__ = [
     "INPUT_REASONS",
@@ -78,7 +78,7 @@ class UnitBinding:
     unit_type : UnitType
         The unit type (measurement schema, compute, result schema).
     fuel : object
-        The unit type's fuel object (``models.fuel.FuelProperties`` for gas turbines).
+        The unit type's fuel object (``models.properties.fuel.FuelProperties`` for gas turbines).
     fuel_key : str
         Text identifying the fuel; units with equal keys may share one compute call.
     parameters : dict of str to float

@@ -21,7 +21,7 @@ Exception tree::
                                       ``issues`` lists every :class:`ConfigIssue` found
 
 Measurement names, their SI units and their physical limits are not listed here: they come from
-the unit type (:func:`models.unit_types.builtin_unit_types`), so the plant file, the models and
+the unit type (:func:`models.units.registry.builtin_unit_types`), so the plant file, the models and
 the database can never disagree.
 """
 
@@ -44,7 +44,7 @@ from pydantic_settings import BaseSettings, SettingsConfigDict
 
 from daemon.uom import Converter, UomError, compile_converter, get_registry, parse_uom
 from daemon.urls import url_secrets, urls_in
-from models.unit_types import FieldSpec, UnitType
+from models.units.base import FieldSpec, UnitType
 
 __all__ = [
     "BrokerConfig",
@@ -258,16 +258,16 @@ class FuelConfig(_Section):
         return "gas" if self.composition is not None else "liquid"
 
     def build(self) -> Any:
-        """Return the :class:`models.fuel.FuelProperties` of this fuel.
+        """Return the :class:`models.properties.fuel.FuelProperties` of this fuel.
 
         Raises
         ------
         models.status.ModelInputError
-            Composition or analysis rejected by :mod:`models.fuel`.
+            Composition or analysis rejected by :mod:`models.properties.fuel`.
         ValueError
             Neither or both forms given, or a liquid without its C/H fractions.
         """
-        from models import fuel as fuel_mod
+        from models.properties import fuel as fuel_mod
 
         if self.composition is not None:
             if self.lower_heating_value is not None or self.carbon_mass_fraction is not None:
@@ -413,7 +413,7 @@ class UnitConfig(_Section):
 
     @property
     def fuel_properties(self) -> Any:
-        """:class:`models.fuel.FuelProperties` built from ``fuel`` at load."""
+        """:class:`models.properties.fuel.FuelProperties` built from ``fuel`` at load."""
         return self._fuel_properties
 
     def effective_parameters(self) -> dict[str, float]:
@@ -549,7 +549,7 @@ def available_unit_types() -> dict[str, UnitType]:
     """Unit types known to this installation: ``models``' built-ins plus the
     ``brayscope.unit_types`` entry points (a plug-in that fails to load is skipped and named
     in the error of any unit that uses it)."""
-    from models.unit_types import builtin_unit_types
+    from models.units.registry import builtin_unit_types
 
     types: dict[str, UnitType] = dict(builtin_unit_types())
     for ep in importlib.metadata.entry_points(group="brayscope.unit_types"):

@@ -15,7 +15,7 @@ A record is one snapshot of one unit::
     }
 
 The measurement and parameter names, units, ranges and defaults are not listed here: they are
-taken from the unit type (:class:`models.unit_types.UnitType`), so the contract and the model can
+taken from the unit type (:class:`models.units.base.UnitType`), so the contract and the model can
 never disagree.  :func:`contract_for` builds the pydantic models for one unit type.
 
 What is rejected (each with the record and the field path in the message):
@@ -55,9 +55,9 @@ from pydantic import (
 )
 from pydantic_core import PydanticCustomError
 
-from models.correction import CorrectionCurve, CorrectionTables
-from models.fuel import GAS_COMPONENTS
-from models.unit_types import FieldSpec, UnitType
+from models.correction.gas_turbine import CorrectionCurve, CorrectionTables
+from models.properties.fuel import GAS_COMPONENTS
+from models.units.base import FieldSpec, UnitType
 
 __all__ = [
     "CORRECTION_CURVES",
@@ -294,7 +294,8 @@ SpeciesName = Annotated[str, AfterValidator(_check_species)]
 
 class GasFuelSpec(BaseModel):
     """A gaseous fuel by composition: mole fractions [1] per component of
-    :data:`models.fuel.GAS_COMPONENTS` (summing to 1 within the fuel model's tolerance)."""
+    :data:`models.properties.fuel.GAS_COMPONENTS` (summing to 1 within the fuel model's
+    tolerance)."""
 
     model_config = _STRICT
 
@@ -302,7 +303,7 @@ class GasFuelSpec(BaseModel):
 
     def to_fuel(self) -> Any:
         """Build the model's fuel object (raises :class:`models.status.ModelInputError`)."""
-        from models.fuel import gas_fuel
+        from models.properties.fuel import gas_fuel
 
         return gas_fuel(self.composition)
 
@@ -322,7 +323,7 @@ class LiquidFuelSpec(BaseModel):
 
     def to_fuel(self) -> Any:
         """Build the model's fuel object (raises :class:`models.status.ModelInputError`)."""
-        from models.fuel import liquid_fuel
+        from models.properties.fuel import liquid_fuel
 
         optional = {
             k: v
@@ -367,14 +368,14 @@ FuelSpec = Annotated[
 
 
 # --------------------------------------------------------------------------------------------
-# Correction tables (the shape of models.correction.CorrectionTables)
+# Correction tables (the shape of models.correction.gas_turbine.CorrectionTables)
 # --------------------------------------------------------------------------------------------
 
 
 class CorrectionCurveSpec(BaseModel):
     """One correction curve: ``factor`` [1] versus ``x`` (SI: K, Pa or RH fraction), at least
     two points, ``x`` strictly increasing, factors > 0 (checked by
-    :class:`models.correction.CorrectionCurve`)."""
+    :class:`models.correction.gas_turbine.CorrectionCurve`)."""
 
     model_config = _STRICT
 
@@ -394,8 +395,9 @@ CorrectionsSpec: type[BaseModel] = create_model(
 
 
 def correction_tables(spec: BaseModel) -> CorrectionTables:
-    """Build :class:`models.correction.CorrectionTables` from a validated ``CorrectionsSpec``
-    (raises :class:`models.status.ModelInputError` naming ``corrections.<curve>.x|factor``)."""
+    """Build :class:`models.correction.gas_turbine.CorrectionTables` from a validated
+    ``CorrectionsSpec`` (raises :class:`models.status.ModelInputError` naming
+    ``corrections.<curve>.x|factor``)."""
     curves = {}
     for name in CORRECTION_CURVES:
         c = getattr(spec, name)
@@ -658,7 +660,8 @@ def validate_record(
     value : object
         The parsed JSON value (NaN/Infinity as :class:`NonFinite`).
     unit_types : Mapping[str, UnitType]
-        Known unit types by name (injected; usually :func:`models.unit_types.builtin_unit_types`).
+        Known unit types by name (injected; usually
+        :func:`models.units.registry.builtin_unit_types`).
     default_unit : str
         Unit type of a record without a ``"unit_type"`` key.
 

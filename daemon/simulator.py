@@ -3,9 +3,9 @@
 The demo needs a plant that behaves like one: loads change, the air warms up by day and cools
 at night, compressors foul and lose efficiency and flow capacity, one unit is washed offline
 and recovers, sensors are noisy and now and then send rubbish.  This module builds that plant
-on top of the forward cycle model :func:`models.gas_turbine.simulate` (component health and
-operating point in, sensor values out) and turns its SI values into the payloads the plant
-file's tag map expects (topics, units of measure, payload forms).
+on top of the forward cycle model :func:`models.units.gas_turbine.simulate.simulate` (component
+health and operating point in, sensor values out) and turns its SI values into the payloads the
+plant file's tag map expects (topics, units of measure, payload forms).
 
 Everything here is invented demonstration data.  Nothing is a property of a real machine.
 
@@ -556,8 +556,9 @@ def operating_point(
     Returns
     -------
     dict
-        Keyword arguments for :func:`models.gas_turbine.simulate` (air flow, pressure ratio,
-        turbine inlet temperature, efficiencies, inlet and exhaust losses as fractions).
+        Keyword arguments for :func:`models.units.gas_turbine.simulate.simulate` (air flow,
+        pressure ratio, turbine inlet temperature, efficiencies, inlet and exhaust losses as
+        fractions).
 
     Notes
     -----
@@ -734,7 +735,7 @@ class PlantSimulator:
 
     def unit_values(self, hours: float) -> dict[str, UnitTruth]:
         """Noise-free sensor values [SI] of every simulated unit at scenario time ``hours``."""
-        from models.gas_turbine import simulate
+        from models.units.gas_turbine.simulate import simulate
 
         sc = self.scenario
         amb = {k: float(v) for k, v in ambient_conditions(sc, hours).items()}
@@ -864,7 +865,7 @@ class PlantSimulator:
         return x
 
 
-#: Unit parameters :func:`models.gas_turbine.simulate` accepts.
+#: Unit parameters :func:`models.units.gas_turbine.simulate.simulate` accepts.
 _SIM_PARAMETERS = frozenset(
     {
         "generator_efficiency",

@@ -26,6 +26,7 @@ __all__ = [
     "ModelInputError",
     "Reason",
     "combine",
+    "flag",
     "reason_names",
 ]
 
@@ -112,3 +113,25 @@ def combine(*codes: NDArray[np.uint32]) -> NDArray[np.uint32]:
     for c in codes:
         out |= c
     return out
+
+
+def flag(status: NDArray[np.uint32], mask: NDArray[np.bool_], reason: Reason) -> None:
+    """Set the bit ``reason`` in ``status`` where ``mask`` is true, in place.
+
+    Parameters
+    ----------
+    status : ndarray of uint32
+        Per-element status, modified in place.
+    mask : ndarray of bool
+        Elements to flag; broadcasts against ``status``.
+    reason : Reason
+        The bit to set.
+
+    Examples
+    --------
+    >>> st = np.zeros(3, dtype=np.uint32)
+    >>> flag(st, np.array([False, True, False]), Reason.INPUT_MISSING)
+    >>> reason_names(st[1]), int(st[0])
+    (['input_missing'], 0)
+    """
+    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)

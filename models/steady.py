@@ -97,7 +97,7 @@ class RStatisticState:
     count : ndarray of int64
         Number of finite samples taken in so far.
     lambda1, lambda2, lambda3 : float
-        Filter factors [1].
+        Filter factors [-].
     warmup : int
         R is reported as NaN until ``count > warmup`` (the filters start from zero).
     """
@@ -128,7 +128,7 @@ class RStatisticState:
         shape : int or tuple of int
             Batch shape (number of series); ``()`` for a single series.
         lambda1, lambda2, lambda3 : float
-            Filter factors [1], each in (0, 1].
+            Filter factors [-], each in (0, 1].
         warmup : int, optional
             Samples before R is reported.  Default ``ceil(2 / min(lambda2, lambda3))``
             (20 samples for the default factors): by then the zero start of the variance
@@ -160,7 +160,7 @@ class RStatisticState:
 
 
 def update(state: RStatisticState, x_new: ArrayLike) -> tuple[RStatisticState, FloatArray]:
-    """Advance the R-statistic filters by one sample per series.
+    r"""Advance the R-statistic filters by one sample per series.
 
     Parameters
     ----------
@@ -175,32 +175,32 @@ def update(state: RStatisticState, x_new: ArrayLike) -> tuple[RStatisticState, F
     state : RStatisticState
         New state (the input state is not modified).
     R : ndarray of float
-        R-statistic after this sample [1]; NaN while warming up, for a missing sample, or
+        R-statistic after this sample [-]; NaN while warming up, for a missing sample, or
         when the filtered successive difference is zero (a signal with no variation at all:
         steadiness cannot be judged, and a stuck sensor looks the same).
 
     Notes
     -----
-    With sample :math:`X_i` and filter factors :math:`\\lambda_1, \\lambda_2, \\lambda_3`
+    With sample :math:`X_i` and filter factors :math:`\lambda_1, \lambda_2, \lambda_3`
     (Cao & Rhinehart 1995, Eqs. for the filtered mean and the two filtered variances):
 
     .. math::
 
-        \\nu^2_{f,i} &= \\lambda_2 (X_i - X_{f,i-1})^2 + (1-\\lambda_2)\\,\\nu^2_{f,i-1} \\\\
-        X_{f,i} &= \\lambda_1 X_i + (1-\\lambda_1) X_{f,i-1} \\\\
-        \\delta^2_{f,i} &= \\lambda_3 (X_i - X_{i-1})^2 + (1-\\lambda_3)\\,\\delta^2_{f,i-1} \\\\
-        R_i &= (2 - \\lambda_1)\\,\\nu^2_{f,i} / \\delta^2_{f,i}
+        \nu^2_{f,i} &= \lambda_2 (X_i - X_{f,i-1})^2 + (1-\lambda_2)\,\nu^2_{f,i-1} \\
+        X_{f,i} &= \lambda_1 X_i + (1-\lambda_1) X_{f,i-1} \\
+        \delta^2_{f,i} &= \lambda_3 (X_i - X_{i-1})^2 + (1-\lambda_3)\,\delta^2_{f,i-1} \\
+        R_i &= (2 - \lambda_1)\,\nu^2_{f,i} / \delta^2_{f,i}
 
     The first finite sample sets :math:`X_{f,0} = X_0` and starts both variance filters at
-    zero.  For independent noise of variance :math:`\\sigma^2` about a constant mean,
-    :math:`E[(X_i - X_{f,i-1})^2] = 2\\sigma^2/(2-\\lambda_1)` and
-    :math:`E[(X_i - X_{i-1})^2] = 2\\sigma^2`, so R is near 1 at steady state; a trend or a
+    zero.  For independent noise of variance :math:`\sigma^2` about a constant mean,
+    :math:`E[(X_i - X_{f,i-1})^2] = 2\sigma^2/(2-\lambda_1)` and
+    :math:`E[(X_i - X_{i-1})^2] = 2\sigma^2`, so R is near 1 at steady state; a trend or a
     step inflates the deviation from the lagging filtered mean far more than the successive
     difference, so R rises well above 1.
 
-    On a ramp of s per sample the filtered mean lags by :math:`s(1-\\lambda_1)/\\lambda_1`,
-    so :math:`E[\\nu^2_f] = 2\\sigma^2/(2-\\lambda_1) + (s/\\lambda_1)^2` and
-    :math:`E[\\delta^2_f] = 2\\sigma^2 + s^2`: with the default factors a drift of
+    On a ramp of s per sample the filtered mean lags by :math:`s(1-\lambda_1)/\lambda_1`,
+    so :math:`E[\nu^2_f] = 2\sigma^2/(2-\lambda_1) + (s/\lambda_1)^2` and
+    :math:`E[\delta^2_f] = 2\sigma^2 + s^2`: with the default factors a drift of
     0.1 σ per sample lifts R only to about 1.2, 0.3 σ to about 2.9.  Slow drifts are
     caught only if the tick is long enough for the drift per sample to approach the noise.
 
@@ -258,7 +258,7 @@ def r_statistic(
     *,
     warmup: int | None = None,
 ) -> FloatArray:
-    """R-statistic of Cao & Rhinehart (1995) along one axis of a batch of series.
+    r"""R-statistic of Cao & Rhinehart (1995) along one axis of a batch of series.
 
     Parameters
     ----------
@@ -266,7 +266,7 @@ def r_statistic(
         Samples at a fixed interval along ``axis`` [any unit]; other axes are independent
         series (units, tags).  NaN / ±Inf samples are skipped (state held, R = NaN there).
     lambda1, lambda2, lambda3 : float
-        Filter factors [1], each in (0, 1]; defaults 0.2, 0.1, 0.1 as in the paper.
+        Filter factors [-], each in (0, 1]; defaults 0.2, 0.1, 0.1 as in the paper.
     axis : int
         Time axis.
     warmup : int, optional
@@ -275,10 +275,14 @@ def r_statistic(
     Returns
     -------
     ndarray of float
-        R at every sample, same shape as ``x`` [1].
+        R at every sample, same shape as ``x`` [-].
 
     Notes
     -----
+    .. math::
+
+        R = \frac{(2 - \lambda_1)\, \nu^2_f}{\delta^2_f}
+
     Exactly the recursion of :func:`update`, run over the time axis (a loop over time,
     vectorised across series), so an on-line run tick by tick gives the same numbers.
     Steady state (independent noise about a constant) gives R near 1; the null distribution
@@ -313,21 +317,32 @@ def steady_step(
     enter: float = DEFAULT_ENTER,
     leave: float = DEFAULT_LEAVE,
 ) -> BoolArray:
-    """One tick of the steady/transient hysteresis (see :func:`steady_flags`).
+    r"""One tick of the steady/transient hysteresis (see :func:`steady_flags`).
 
     Parameters
     ----------
     R : array_like of float
-        R-statistic now, one per series [1].
+        R-statistic now, one per series [-].
     previous : array_like of bool
         Flag after the previous tick.
     enter, leave : float
-        Thresholds [1], ``0 < enter <= leave``.
+        Thresholds [-], ``0 < enter <= leave``.
 
     Returns
     -------
     ndarray of bool
         True where steady.  A NaN R gives False (and the series must re-qualify).
+
+    Notes
+    -----
+    .. math::
+
+        s = (R < R_{enter}) \lor (s_{prev} \land R \le R_{leave})
+
+    References
+    ----------
+    .. [1] S. Cao and R. R. Rhinehart, "An efficient method for on-line identification of
+       steady state", Journal of Process Control 5(6):363-374, 1995.
     """
     if not (0.0 < enter <= leave):
         raise ModelInputError("enter", (enter, leave), "0 < enter <= leave")
@@ -345,16 +360,16 @@ def steady_flags(
     initial: ArrayLike = False,
     axis: int = -1,
 ) -> BoolArray:
-    """Steady/transient flags from an R-statistic series, with hysteresis.
+    r"""Steady/transient flags from an R-statistic series, with hysteresis.
 
     Parameters
     ----------
     R : array_like of float
-        R-statistic along ``axis`` [1] (from :func:`r_statistic`).
+        R-statistic along ``axis`` [-] (from :func:`r_statistic`).
     enter : float
-        A transient series becomes steady when R < ``enter`` [1].  Default 1.2.
+        A transient series becomes steady when R < ``enter`` [-].  Default 1.2.
     leave : float
-        A steady series becomes transient when R > ``leave`` [1].  Default 2.0.
+        A steady series becomes transient when R > ``leave`` [-].  Default 2.0.
     initial : array_like of bool
         State before the first sample (broadcast over the other axes); default transient.
     axis : int
@@ -367,6 +382,11 @@ def steady_flags(
 
     Notes
     -----
+    .. math::
+
+        s_i = \begin{cases} \text{true} & R_i < R_{enter} \\ \text{false} & R_i > R_{leave}
+        \text{ or } R_i \text{ NaN} \\ s_{i-1} & \text{otherwise} \end{cases}
+
     Between the thresholds the previous flag is kept, so noise near a single threshold does
     not make the flag chatter.  A NaN R (warm-up, missing sample, flat signal) gives False
     and the series must re-qualify by R < ``enter``: conservative, because a figure taken
@@ -398,12 +418,12 @@ def steady_flags(
 
 
 def steady_status(R: ArrayLike, flags: ArrayLike) -> NDArray[np.uint32]:
-    """Reason bits for a steady-state verdict.
+    r"""Reason bits for a steady-state verdict.
 
     Parameters
     ----------
     R : array_like of float
-        R-statistic [1].
+        R-statistic [-].
     flags : array_like of bool
         Steady flags (from :func:`steady_flags` or :func:`steady_step`).
 
@@ -411,6 +431,18 @@ def steady_status(R: ArrayLike, flags: ArrayLike) -> NDArray[np.uint32]:
     -------
     ndarray of uint32
         ``NOT_STEADY`` where not steady, plus ``INPUT_MISSING`` where R is NaN.
+
+    Notes
+    -----
+    .. math::
+
+        \text{status} = \text{NOT\_STEADY} \cdot [\lnot s]
+            + \text{INPUT\_MISSING} \cdot [R \text{ NaN}]
+
+    References
+    ----------
+    .. [1] S. Cao and R. R. Rhinehart, "An efficient method for on-line identification of
+       steady state", Journal of Process Control 5(6):363-374, 1995.
     """
     r = np.asarray(R, dtype=np.float64)
     f = np.asarray(flags, dtype=bool)
@@ -447,7 +479,7 @@ def window_stability(
     axis: int = -1,
     min_valid: int | None = None,
 ) -> WindowStability:
-    """Trailing-window standard-deviation test against per-signal limits.
+    r"""Trailing-window standard-deviation test against per-signal limits.
 
     Parameters
     ----------
@@ -474,12 +506,21 @@ def window_stability(
 
     Notes
     -----
-    :math:`s_i = \\sqrt{\\sum (x_k - \\bar x)^2 / (n - 1)}` over the finite samples of the
+    .. math::
+
+        s = \sqrt{\frac{\sum_k (x_k - \bar x)^2}{n - 1}}
+
+    :math:`s_i = \sqrt{\sum (x_k - \bar x)^2 / (n - 1)}` over the finite samples of the
     window, from running sums of the signal less its median (so long records keep their
     precision), O(N) in time and memory.  Limiting the fluctuation of the load, the inlet
     temperature and the fuel flow during a test run is common practice in acceptance-test
     codes for gas turbines; the limits depend on the machine and the test and are unit
     parameters here, never built in.
+
+    References
+    ----------
+    .. [1] ASME PTC 22-2014, Performance Test Code on Gas Turbines (permissible fluctuations
+       of test readings: common practice of acceptance-test codes).
     """
     if window < 2:
         raise ModelInputError("window", window, "window >= 2 samples")

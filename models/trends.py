@@ -1,5 +1,9 @@
 """Degradation trends for maintenance planning: rates, wash steps, threshold forecasts, smoothing.
 
+Length (about 670 lines, above the project's 600): one function per published method (EWMA,
+wash-step detection, the piecewise degradation fit, the Fieller forecast) sharing the fit
+types; half of it is documentation.
+
 A corrected key performance indicator (KPI: corrected compressor isentropic efficiency,
 corrected power, corrected heat rate ...) drifts with fired hours.  Part of the loss is
 *recoverable* (compressor fouling, largely removed by a wash); the rest is *non-recoverable*
@@ -50,8 +54,9 @@ PER_1000_HOURS = 1000.0
 
 @dataclass(frozen=True)
 class FitLine:
-    """A fitted straight line ``y(t) = level + rate_per_1000h * (t - t_ref) / 1000`` with its
-    covariance.
+    """A fitted straight line with its covariance.
+
+    ``y(t) = level + rate_per_1000h * (t - t_ref) / 1000``.
 
     Attributes
     ----------
@@ -76,14 +81,14 @@ class FitLine:
         return np.asarray(self.level + self.rate_per_1000h * u / PER_1000_HOURS)
 
     def std_error(self, t: ArrayLike) -> FloatArray:
-        """Standard error of the fitted line (the mean, not a new point) at ``t`` [KPI unit]."""
+        """Return the standard error of the line (the mean, not a new point) at ``t`` [KPI unit]."""
         u = (np.asarray(t, dtype=np.float64) - self.t_ref) / PER_1000_HOURS
         c = self.cov
         return np.asarray(np.sqrt(np.maximum(c[0, 0] + 2 * u * c[0, 1] + u * u * c[1, 1], 0.0)))
 
 
 def _line(t_ref: float, level: float, slope_per_hour: float, cov_per_hour: FloatArray) -> FitLine:
-    """A :class:`FitLine` from a slope per fired hour and the covariance of (level, slope)."""
+    """Make a :class:`FitLine` from a slope per fired hour and the covariance of (level, slope)."""
     scale = np.array([1.0, PER_1000_HOURS])
     return FitLine(
         t_ref, level, slope_per_hour * PER_1000_HOURS, cov_per_hour * np.outer(scale, scale)
@@ -198,7 +203,7 @@ def fit_degradation(
     y: ArrayLike,
     wash_events: ArrayLike | None = None,
 ) -> DegradationFit:
-    """Fit the between-wash and post-wash degradation rates of a corrected KPI.
+    r"""Fit the between-wash and post-wash degradation rates of a corrected KPI.
 
     Parameters
     ----------
@@ -218,16 +223,16 @@ def fit_degradation(
     Notes
     -----
     Stage 1 (fixed-effects least squares): in wash interval k, starting at
-    :math:`\\tau_k` (the first point for k = 0, the wash time after that),
+    :math:`\tau_k` (the first point for k = 0, the wash time after that),
 
-    .. math:: y_i = c_k + r\\,(t_i - \\tau_k) + e_i,
+    .. math:: y_i = c_k + r\,(t_i - \tau_k) + e_i,
 
     one level :math:`c_k` per interval (the post-wash level) and one common slope r (the
     rate between washes), solved by ``numpy.linalg.lstsq``; the covariance is
-    :math:`s^2 (X^T X)^{-1}` with :math:`s^2 = \\mathrm{RSS}/(N - K - 1)`.
+    :math:`s^2 (X^T X)^{-1}` with :math:`s^2 = \mathrm{RSS}/(N - K - 1)`.
 
     Stage 2: the post-wash (non-recoverable) rate is the slope of :math:`c_k` versus
-    :math:`\\tau_k`.  With three or more intervals it is an OLS line whose standard error
+    :math:`\tau_k`.  With three or more intervals it is an OLS line whose standard error
     comes from the scatter of the levels (so washes of uneven effectiveness widen it); with
     two it is the difference quotient, its standard error propagated from stage 1 only.
 
@@ -367,7 +372,7 @@ def detect_steps(
     window: int,
     direction: Literal["up", "down", "both"] = "both",
 ) -> Steps:
-    """Find wash / recovery steps: level shifts between two adjacent windows.
+    r"""Find wash / recovery steps: level shifts between two adjacent windows.
 
     Parameters
     ----------
@@ -395,10 +400,10 @@ def detect_steps(
     Two-window test: at each candidate point i the mean of the ``window`` finite points
     from i onward minus the mean of the ``window`` points before i,
 
-    .. math:: d_i = \\bar y_{[i, i+w)} - \\bar y_{[i-w, i)},
+    .. math:: d_i = \bar y_{[i, i+w)} - \bar y_{[i-w, i)},
 
     peaks (triangularly) at the true change point.  A step is reported at a local maximum
-    of :math:`|d_i|` (within ±w points) with :math:`|d_i| \\ge` ``min_step``, and confirmed
+    of :math:`|d_i|` (within ±w points) with :math:`|d_i| \ge` ``min_step``, and confirmed
     with the robust estimate (median after minus median before), which must also reach
     ``min_step`` with the same sign: a lone outlier moves a window mean but not its median.
     Windows count points, not hours: with irregular sampling, resample first.
@@ -490,7 +495,7 @@ def forecast_crossing(
     which: Literal["current", "post_wash", "overall"] = "current",
     k: float = 2.0,
 ) -> Crossing:
-    """Fired hours at which a fitted degradation line reaches a threshold.
+    r"""Return the fired hours at which a fitted degradation line reaches a threshold.
 
     Parameters
     ----------
@@ -516,10 +521,10 @@ def forecast_crossing(
     -----
     The line :math:`y(t) = L + r (t - t_0)` with covariance of :math:`(L, r)` reaches the
     threshold :math:`y^*` at :math:`t^* = t_0 + (y^* - L)/r`.  The band is the set of t for
-    which :math:`y^*` lies within :math:`\\pm k\\,\\mathrm{se}(t)` of the line, the roots
+    which :math:`y^*` lies within :math:`\pm k\,\mathrm{se}(t)` of the line, the roots
     of
 
-    .. math:: (y^* - L - r u)^2 = k^2 (V_{LL} + 2u V_{Lr} + u^2 V_{rr}), \\quad u = t - t_0,
+    .. math:: (y^* - L - r u)^2 = k^2 (V_{LL} + 2u V_{Lr} + u^2 V_{rr}), \quad u = t - t_0,
 
     the inverse-regression (calibration) interval of Fieller's theorem.  It closes only if
     :math:`r^2 > k^2 V_{rr}` (the rate is significant); otherwise one end is infinite.
@@ -596,9 +601,20 @@ def forecast_crossing(
 
 
 def ewma_step(previous: ArrayLike, x_new: ArrayLike, alpha: float) -> FloatArray:
-    """One step of :func:`ewma` for live use: ``alpha * x + (1 - alpha) * previous``.
+    r"""One step of :func:`ewma` for live use: ``alpha * x + (1 - alpha) * previous``.
 
     A NaN ``previous`` starts from ``x_new``; a NaN ``x_new`` keeps ``previous``.
+
+    Notes
+    -----
+    .. math::
+
+        S_i = \alpha x_i + (1 - \alpha) S_{i-1}
+
+    References
+    ----------
+    .. [1] S. W. Roberts, "Control chart tests based on geometric moving averages",
+       Technometrics 1(3):239-250, 1959.
     """
     if not (0.0 < alpha <= 1.0):
         raise ModelInputError("alpha", alpha, "0 < alpha <= 1")
@@ -610,14 +626,14 @@ def ewma_step(previous: ArrayLike, x_new: ArrayLike, alpha: float) -> FloatArray
 
 
 def ewma(x: ArrayLike, alpha: float, axis: int = -1) -> FloatArray:
-    """Exponentially weighted moving average along one axis, vectorised across series.
+    r"""Exponentially weighted moving average along one axis, vectorised across series.
 
     Parameters
     ----------
     x : array_like of float
         Samples along ``axis`` [any unit]; other axes are independent series.
     alpha : float
-        Weight of the newest sample, 0 < alpha <= 1 [1]; the time constant is about
+        Weight of the newest sample, 0 < alpha <= 1 [-]; the time constant is about
         ``1 / alpha`` samples.
     axis : int
         Time axis.
@@ -630,7 +646,11 @@ def ewma(x: ArrayLike, alpha: float, axis: int = -1) -> FloatArray:
 
     Notes
     -----
-    :math:`S_0 = x_0`, :math:`S_i = \\alpha x_i + (1-\\alpha) S_{i-1}` (Roberts 1959).
+    .. math::
+
+        S_0 = x_0, \qquad S_i = \alpha x_i + (1 - \alpha) S_{i-1}
+
+    :math:`S_0 = x_0`, :math:`S_i = \alpha x_i + (1-\alpha) S_{i-1}` (Roberts 1959).
 
     References
     ----------

@@ -13,7 +13,7 @@ Two things live here, both built on Cantera's ideal-gas thermodynamics and nothi
   the independent reference of the round-trip test: the inverse in ``models`` works with
   sensible enthalpies and an ISO 6976 heating value instead.
 * :func:`reconstruct_one` - the *inverse* for one snapshot, the same equations as
-  ``models.gas_turbine.reconstruct`` but with one Cantera property call after another.  It is
+  ``models.units.gas_turbine.reconstruct.reconstruct`` but with one Cantera property call after another.  It is
   the "per-snapshot loop" baseline of ``brayscope bench`` and an oracle for the vectorised code.
 
 Thermodynamic data
@@ -31,7 +31,7 @@ Humid air
 The water mole fraction at the compressor inlet is fixed by the ambient state: CoolProp's
 humid-air model (ASHRAE RP-1485, HAPropsSI output ``psi_w``), which includes the enhancement
 factor and refers RH to ice below 0 degC (``saturation="ice"``, the default, the same
-convention as ``models.gas.humid_air``), or - for ``saturation="water"`` below 0 degC, the
+convention as ``models.properties.humid_air.humid_air``), or - for ``saturation="water"`` below 0 degC, the
 meteorological convention of relative humidity over liquid water - ``RH * f * p_sat,w(T) / p``
 with CoolProp's IAPWS-95 water.
 
@@ -46,7 +46,7 @@ Consistency with the inverse (documented differences)
   ``m_a h_a(T2) + m_f h_f(Tf) - (1 - eta_b) m_f LHV = m_g h_g(T3)`` in absolute enthalpies.
 * Casing heat loss: ``Q_loss = casing_heat_loss_fraction * m_f * LHV`` leaves the hot section.
   Where it leaves (before the turbine-inlet station or after it) follows the convention of
-  ``models.gas_turbine``; see :data:`CASING_LOSS_AT`.
+  ``models.units.gas_turbine.reconstruct``; see :data:`CASING_LOSS_AT`.
 * Cantera uses kmol; everything here is converted to SI per kg or per mol at the edges.
 
 References
@@ -102,15 +102,15 @@ DRY_AIR: Mapping[str, float] = {k: v / _DRY_SUM for k, v in _DRY.items()}
 
 #: Where the casing heat loss leaves the gas path: ``"combustor"`` (before station 3, so the
 #: combustor balance carries it) or ``"turbine"`` (after station 3).  Kept equal to the
-#: convention of ``models.gas_turbine`` (see that module's Notes).
+#: convention of ``models.units.gas_turbine.reconstruct`` (see that module's Notes).
 CASING_LOSS_AT: Literal["combustor", "turbine"] = "combustor"
 
 #: Stations whose states carry the real-gas departure of air when ``real_gas=True``: the
-#: compressor (1, 2, 2s) and/or the turbine (3, 4, 4s).  ``models.gas_turbine`` applies the
+#: compressor (1, 2, 2s) and/or the turbine (3, 4, 4s).  ``models.units.gas_turbine.reconstruct`` applies the
 #: molar departure of air to every station (combustion gas included), so both.
 REAL_GAS_STATIONS: frozenset[str] = frozenset({"compressor", "turbine"})
 
-# our species names (models.species spelling) -> name in each Cantera data file
+# our species names (models.properties.species spelling) -> name in each Cantera data file
 _NASA_NAMES = {
     "N2": "N2",
     "O2": "O2",
@@ -545,9 +545,9 @@ def reconstruct_one(
 ) -> dict[str, float]:
     """Reconstruct one snapshot with Cantera property calls (the per-snapshot baseline).
 
-    Same method as the vectorised reconstruction in ``models.gas_turbine``: sensible
+    Same method as the vectorised reconstruction in ``models.units.gas_turbine.reconstruct``: sensible
     enthalpies relative to 25 degC with the caller's heating value ``lhv`` [J/kg] (pass the
-    ISO 6976 value of ``models.fuel`` to compare like with like).
+    ISO 6976 value of ``models.properties.fuel`` to compare like with like).
 
     Parameters
     ----------

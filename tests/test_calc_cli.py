@@ -4,7 +4,7 @@ Sources of the check values (named again beside each check):
 
 * ISO 6976:2016, Table A.4 (ideal-gas gross molar heating value of methane at 25 °C,
   890.58 kJ/mol) and L°(25 °C) = 44.013 kJ/mol for the water formed (clause 5 / Table A.5, as
-  quoted in models/fuel.py); methane molar mass 16.04246 g/mol (ISO 6976:2016 Table A.1 atomic
+  quoted in models/properties/fuel.py); methane molar mass 16.04246 g/mol (ISO 6976:2016 Table A.1 atomic
   masses C 12.0107, H 1.00794).  Net = 890.58 − 2 · 44.013 = 802.554 kJ/mol → 50.027 MJ/kg.
 * Heat rate HR = 3600 · m_f · LHV / P_gen [kJ/kWh] and η_th = P_gen / (m_f · LHV): the trade's
   definitions (ISO 2314:2009 clause 3 terms; common practice).
@@ -30,7 +30,8 @@ import pytest
 
 from daemon import calc
 from daemon.cli import build_parser, main
-from models.unit_types import ComputeOutput, UnitType, builtin_unit_types
+from models.units.base import ComputeOutput, UnitType
+from models.units.registry import builtin_unit_types
 
 GT = builtin_unit_types()["gas_turbine"]
 RESULT_NAMES = [s.name for s in GT.results]
@@ -289,7 +290,7 @@ def test_fuel_refused_by_the_model_rejects_its_group_only(
     capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch
 ) -> None:
     bad = snapshot()
-    bad["fuel"] = {"composition": {"CH4": 0.90}}  # sums to 0.9: refused by models.fuel
+    bad["fuel"] = {"composition": {"CH4": 0.90}}  # sums to 0.9: refused by models.properties.fuel
     rc, out, err = cli(["-"], capsys, monkeypatch, json.dumps([bad, snapshot()]))
     assert rc == calc.EXIT_INVALID
     docs = json.loads(out)

@@ -1,4 +1,4 @@
-"""Components on models.gas mixtures: compressor, combustor, turbine, generator, ideal cycles.
+"""Components on models.properties.mixtures mixtures: compressor, combustor, turbine, generator, ideal cycles.
 
 Sources are named beside every check value.  "from memory" marks values quoted from a book
 without the page at hand; their tolerances follow the book's table precision.
@@ -11,16 +11,16 @@ import math
 import numpy as np
 import pytest
 
-from models import gas
-from models.combustor import combustor, exhaust_mixture, stoichiometric_fuel_air_ratio
-from models.compressor import compressor, compressor_discharge_temperature
-from models.fuel import gas_fuel
-from models.ideal import air_standard_brayton_efficiency, brayton_cycle, carnot_efficiency
-from models.machine import generator_power, shaft_power
+from models.components.combustor import combustor, exhaust_mixture, stoichiometric_fuel_air_ratio
+from models.components.compressor import compressor, compressor_discharge_temperature
+from models.components.generator import generator_power, shaft_power
+from models.components.turbine import turbine, turbine_exit_temperature
+from models.cycles.brayton import air_standard_brayton_efficiency, brayton_cycle, carnot_efficiency
+from models.properties import humid_air, mixtures
+from models.properties.fuel import gas_fuel
 from models.status import Reason
-from models.turbine import turbine, turbine_exit_temperature
 
-DRY = gas.Mixture.from_mole_fractions(gas.DRY_AIR)
+DRY = mixtures.Mixture.from_mole_fractions(humid_air.DRY_AIR)
 METHANE = gas_fuel({"CH4": 1.0})
 
 
@@ -161,8 +161,8 @@ def test_compressor_real_gas_against_coolprop_lemmon_air() -> None:
 
 def test_compressor_forward_round_trip() -> None:
     # Identity: the forward discharge temperature for a given eta_c gives back eta_c.
-    air_x, _ = gas.humid_air(np.array([263.15, 288.15, 313.15]), 101325.0, 0.6)
-    air = gas.Mixture.from_mole_fractions(air_x)
+    air_x, _ = humid_air.humid_air(np.array([263.15, 288.15, 313.15]), 101325.0, 0.6)
+    air = mixtures.Mixture.from_mole_fractions(air_x)
     T1 = np.array([263.15, 288.15, 313.15])
     p2 = np.array([2.2e6, 1.6e6, 1.0e6])
     T2, st = compressor_discharge_temperature(air, T1, 100e3, p2, 0.87)

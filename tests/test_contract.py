@@ -38,9 +38,9 @@ from daemon.contract import (
     parse_document,
     validate_record,
 )
-from models.correction import CorrectionTables
+from models.correction.gas_turbine import CorrectionTables
 from models.status import ModelInputError
-from models.unit_types import builtin_unit_types
+from models.units.registry import builtin_unit_types
 
 UNIT_TYPES = builtin_unit_types()
 GT = UNIT_TYPES["gas_turbine"]

@@ -13,7 +13,7 @@ from typing import Any
 import numpy as np
 import pytest
 
-from models.correction import (
+from models.correction.gas_turbine import (
     REFERENCE_PRESSURE,
     REFERENCE_RELATIVE_HUMIDITY,
     REFERENCE_TEMPERATURE,
@@ -22,9 +22,10 @@ from models.correction import (
     curve_correction,
     reference_operating_point,
 )
-from models.fuel import gas_fuel
-from models.gas_turbine import reconstruct, simulate
+from models.properties.fuel import gas_fuel
 from models.status import ModelInputError, Reason
+from models.units.gas_turbine.reconstruct import reconstruct
+from models.units.gas_turbine.simulate import simulate
 
 FUEL = gas_fuel({"CH4": 0.95, "C2H6": 0.03, "C3H8": 0.005, "N2": 0.01, "CO2": 0.005})
 HEALTH = {

@@ -1,10 +1,10 @@
-"""Whole-cycle reconstruction (models.gas_turbine): identities, independent re-computations
-on models.gas mixtures, element-wise bad-data handling, the unit-type interface.
+"""Whole-cycle reconstruction (models.units.gas_turbine.reconstruct): identities, independent re-computations
+on models.properties.mixtures mixtures, element-wise bad-data handling, the unit-type interface.
 
 Operating points are invented (Kestrel Ridge Energy Park, KR-GT1-like ~45 MW and KR-GT3-like
 ~12 MW machines); they carry no check values of their own.  Check values come from identities
 (energy conservation), from independent re-implementations (component functions and a naive
-fixed-point iteration on gas.Mixture objects), and from facts of the trade where named.
+fixed-point iteration on mixtures.Mixture objects), and from facts of the trade where named.
 """
 
 from __future__ import annotations
@@ -14,15 +14,18 @@ from typing import Any
 import numpy as np
 import pytest
 
-from models import gas
-from models.combustor import combustor, exhaust_mixture
-from models.compressor import compressor
-from models.fuel import gas_fuel, liquid_fuel
-from models.gas_turbine import GAS_TURBINE, reconstruct, simulate
-from models.ideal import brayton_cycle
+from models.components.combustor import combustor, exhaust_mixture
+from models.components.compressor import compressor
+from models.components.turbine import turbine
+from models.cycles.brayton import brayton_cycle
+from models.properties import humid_air, mixtures
+from models.properties.fuel import gas_fuel, liquid_fuel
 from models.status import WARNING_REASONS, Reason
-from models.turbine import turbine
-from models.unit_types import UnitType, builtin_unit_types
+from models.units.base import UnitType
+from models.units.gas_turbine.reconstruct import reconstruct
+from models.units.gas_turbine.schema import GAS_TURBINE
+from models.units.gas_turbine.simulate import simulate
+from models.units.registry import builtin_unit_types
 
 FUEL = gas_fuel(
     {"CH4": 0.93, "C2H6": 0.035, "C3H8": 0.008, "n-C4H10": 0.002, "N2": 0.015, "CO2": 0.01}
@@ -132,13 +135,13 @@ def test_measured_air_flow_consistent_with_heat_balance() -> None:
 
 def test_heat_balance_closed_form_equals_fixed_point_iteration() -> None:
     # Independent re-computation: the usual fixed-point iteration on exhaust composition,
-    # written naively with gas.Mixture objects (combustor.exhaust_mixture, h_real), must
+    # written naively with mixtures.Mixture objects (combustor.exhaust_mixture, h_real), must
     # converge to the closed form of reconstruct().
     meas, _ = _sim(n=12, seed=8)
     out = _recon(meas)
-    x, _ = gas.humid_air(meas["ambient_temperature"], meas["ambient_pressure"],
+    x, _ = humid_air.humid_air(meas["ambient_temperature"], meas["ambient_pressure"],
                          meas["ambient_relative_humidity"])  # fmt: skip
-    air = gas.Mixture.from_mole_fractions(x)
+    air = mixtures.Mixture.from_mole_fractions(x)
     T1, p1 = meas["compressor_inlet_temperature"], meas["compressor_inlet_pressure"]
     T4, p4 = meas["exhaust_temperature"], meas["exhaust_pressure"]
     mf, P = meas["fuel_mass_flow"], meas["generator_power"]
@@ -162,12 +165,12 @@ def test_heat_balance_closed_form_equals_fixed_point_iteration() -> None:
 
 def test_fused_kernel_matches_component_functions() -> None:
     # Independent re-computation: compressor(), combustor(), turbine() and brayton_cycle()
-    # on gas.Mixture objects against the fused kernel of reconstruct().
+    # on mixtures.Mixture objects against the fused kernel of reconstruct().
     meas, _ = _sim(n=10, seed=21)
     v = _recon(meas).values
-    x, _ = gas.humid_air(meas["ambient_temperature"], meas["ambient_pressure"],
+    x, _ = humid_air.humid_air(meas["ambient_temperature"], meas["ambient_pressure"],
                          meas["ambient_relative_humidity"])  # fmt: skip
-    air = gas.Mixture.from_mole_fractions(x)
+    air = mixtures.Mixture.from_mole_fractions(x)
     T1, p1 = meas["compressor_inlet_temperature"], meas["compressor_inlet_pressure"]
     T2, p2 = meas["compressor_discharge_temperature"], meas["compressor_discharge_pressure"]
     c = compressor(air, T1, p1, T2, p2)

@@ -22,9 +22,11 @@ from typing import Any
 import numpy as np
 import pytest
 
-from models import gas_turbine as fast
-from models.correction import CorrectionCurve, CorrectionTables
-from models.fuel import gas_fuel
+from models.correction.gas_turbine import CorrectionCurve, CorrectionTables
+from models.properties.fuel import gas_fuel
+from models.units.gas_turbine import reconstruct as fast
+from models.units.gas_turbine.schema import GAS_TURBINE
+from models.units.gas_turbine.simulate import simulate
 
 RTOL = 1e-7  # relative, every result
 TEMPERATURE_ATOL = 1e-4  # K, results in kelvin
@@ -48,7 +50,7 @@ def _measurements(n: int, seed: int, faults: bool) -> dict[str, np.ndarray]:
     """Invented operating points through the forward model, then sensor faults."""
     rng = np.random.default_rng(seed)
     T0 = rng.uniform(243.15, 318.15, n)
-    meas, _ = fast.simulate(
+    meas, _ = simulate(
         ambient_temperature=T0,
         ambient_pressure=rng.uniform(92.0e3, 104.0e3, n),
         ambient_relative_humidity=rng.uniform(0.0, 1.0, n),
@@ -188,6 +190,6 @@ def test_unit_type_equals_reconstruct() -> None:
     m = _measurements(3000, seed=31, faults=False)
     m["air_mass_flow"][:] = np.nan
     params = {"generator_efficiency": 0.985, "combustor_pressure_loss": 0.04}
-    new = fast.GAS_TURBINE.compute(m, FUEL, params)
+    new = GAS_TURBINE.compute(m, FUEL, params)
     old = fast.reconstruct(**m, fuel=FUEL, **params)
     _assert_same(new, old)

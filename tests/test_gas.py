@@ -1,4 +1,4 @@
-"""Tests of models.gas against outside references.
+"""Tests of models.properties.mixtures against outside references.
 
 Oracles: Cantera 3 (``nasa_gas.yaml`` = McBride et al. 1993 NASA TM-4513, the data we ship;
 ``gri30.yaml`` GRI-Mech 3.0; ``airNASA9.yaml`` McBride et al. NASA/TP-2002-211556), CoolProp
@@ -15,9 +15,10 @@ import CoolProp.CoolProp as CP
 import numpy as np
 import pytest
 
-from models import gas, thermo_data
-from models.gas import DRY_AIR, Mixture, humid_air, residual, saturation_pressure
-from models.species import INDEX, SPECIES, WORKING_SPECIES
+from models.properties import mixtures, thermo_data
+from models.properties.humid_air import DRY_AIR, enhancement_factor, humid_air, saturation_pressure
+from models.properties.mixtures import Mixture, residual
+from models.properties.species import INDEX, SPECIES, WORKING_SPECIES
 from models.status import ModelInputError, Reason
 
 R_U = 8.314462618
@@ -51,14 +52,14 @@ def cantera_x(x: np.ndarray, rename: dict[str, str]) -> dict[str, float]:
 def test_molar_masses_iso6976() -> None:
     # ISO 6976:2016 atomic weights: CH4 = 16.04246 g/mol (brief / ISO 6976:2016 Table A.2),
     # N2 = 2 x 14.0067, H2O = 2 x 1.00794 + 15.9994
-    assert gas.MOLAR_MASS[INDEX["CH4"]] == pytest.approx(16.04246e-3, abs=1e-9)
-    assert gas.MOLAR_MASS[INDEX["N2"]] == pytest.approx(28.0134e-3, abs=1e-9)
-    assert gas.MOLAR_MASS[INDEX["H2O"]] == pytest.approx(18.01528e-3, abs=1e-9)
+    assert mixtures.MOLAR_MASS[INDEX["CH4"]] == pytest.approx(16.04246e-3, abs=1e-9)
+    assert mixtures.MOLAR_MASS[INDEX["N2"]] == pytest.approx(28.0134e-3, abs=1e-9)
+    assert mixtures.MOLAR_MASS[INDEX["H2O"]] == pytest.approx(18.01528e-3, abs=1e-9)
 
 
 def test_common_break_and_ranges() -> None:
     assert np.all(thermo_data.T_MID == 1000.0)
-    assert np.all(thermo_data.T_HIGH >= gas.T_MAX)
+    assert np.all(thermo_data.T_HIGH >= mixtures.T_MAX)
     # working species start at 200 K in the source, except SO2 (300 K, extrapolated; see below)
     low = {s for i, s in enumerate(WORKING_SPECIES) if thermo_data.T_LOW[i] > 200.0}
     assert low == {"SO2"}
@@ -312,7 +313,7 @@ def test_humidity_ratio_vs_hapropssi(T: float, RH: float, p: float) -> None:
     W_ref = CP.HAPropsSI("W", "T", T, "P", p, "R", RH)
     x, st = humid_air(T, p, RH)
     xw = x[INDEX["H2O"]]
-    W = xw * gas.MOLAR_MASS[INDEX["H2O"]] / ((1 - xw) * Mixture.from_mole_fractions(DRY_AIR).M)
+    W = xw * mixtures.MOLAR_MASS[INDEX["H2O"]] / ((1 - xw) * Mixture.from_mole_fractions(DRY_AIR).M)
     # different enhancement factors (CIPM-2007 vs virial-based) and ice/liquid below 0 degC:
     # HAPropsSI uses RH over ice below the triple point as we do
     assert float(W) == pytest.approx(W_ref, rel=4e-3)
@@ -321,11 +322,11 @@ def test_humidity_ratio_vs_hapropssi(T: float, RH: float, p: float) -> None:
 
 def test_enhancement_factor_cipm() -> None:
     # CIPM-2007 (Picard et al. 2008): f = 1.00062 + 3.14e-8 p + 5.6e-7 t^2; at 20 degC, 101325 Pa
-    assert float(gas.enhancement_factor(293.15, 101325.0)) == pytest.approx(
+    assert float(enhancement_factor(293.15, 101325.0)) == pytest.approx(
         1.00062 + 3.14e-8 * 101325.0 + 5.6e-7 * 400.0, rel=1e-12
     )
     # guide: "f ~ 1.004 near 1 atm" (from memory)
-    assert float(gas.enhancement_factor(288.15, 101325.0)) == pytest.approx(1.004, abs=5e-4)
+    assert float(enhancement_factor(288.15, 101325.0)) == pytest.approx(1.004, abs=5e-4)
 
 
 def test_humid_air_status_bits() -> None:
@@ -461,10 +462,12 @@ def test_out_of_range_gives_nan_and_reason() -> None:
 def test_not_converged_flag(monkeypatch: pytest.MonkeyPatch) -> None:
     air = Mixture.from_mole_fractions(DRY_AIR)
     h = air.h(np.array([250.0, 900.0]))
-    monkeypatch.setattr(gas, "MAX_ITER", 1)  # one Newton step from 1500 K away cannot reach 1e-6 K
+    monkeypatch.setattr(
+        mixtures, "MAX_ITER", 1
+    )  # one Newton step from 1500 K away cannot reach 1e-6 K
     T, st = air.T_from_h(h, T_guess=np.array([1750.0, 2400.0]))
     assert np.all(st == Reason.NOT_CONVERGED) and np.all(np.isnan(T))
-    monkeypatch.setattr(gas, "MAX_ITER", 8)
+    monkeypatch.setattr(mixtures, "MAX_ITER", 8)
     T, st = air.T_from_h(h, T_guess=np.array([1750.0, 2400.0]))
     assert np.all(st == 0)
     np.testing.assert_allclose(T, [250.0, 900.0], atol=1e-6)

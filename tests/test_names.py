@@ -33,7 +33,7 @@ from live_support import promtool_check_metrics
 import daemon
 from daemon.renames import RENAMED_RESULTS
 from daemon.storage import Store, schema
-from models.unit_types import builtin_unit_types
+from models.units.registry import builtin_unit_types
 
 ROOT = Path(__file__).resolve().parents[1]
 DOCS = ROOT / "docs"
@@ -486,8 +486,8 @@ def test_calc_md_degrees_celsius_claim_is_what_validation_does() -> None:
 
 
 def _kr_gt1(**changes: float) -> dict[str, float]:
-    from models.fuel import gas_fuel
-    from models.gas_turbine import reconstruct
+    from models.properties.fuel import gas_fuel
+    from models.units.gas_turbine.reconstruct import reconstruct
 
     rec = json.loads((EXAMPLES / "kr-gt1-snapshot.json").read_text())
     meas = {k: np.array([v]) for k, v in rec["measurements"].items()}
@@ -521,7 +521,7 @@ def test_method_md_kestrel_ridge_figures_are_recomputed() -> None:
 
 
 def test_validity_md_fuel_preheat_figures_are_recomputed() -> None:
-    from models.fuel import gas_fuel
+    from models.properties.fuel import gas_fuel
 
     text = (DOCS / "validity.md").read_text(encoding="utf-8")
     rec = json.loads((EXAMPLES / "kr-gt1-snapshot.json").read_text())
@@ -545,7 +545,8 @@ def test_validity_md_fuel_preheat_figures_are_recomputed() -> None:
 
 
 def test_glossary_and_method_state_one_humidity_convention_below_freezing() -> None:
-    from models import gas
+    from models.properties import humid_air
+    from models.properties.species import INDEX
 
     glossary = " ".join(GLOSSARY.read_text(encoding="utf-8").split())
     method = " ".join((DOCS / "method.md").read_text(encoding="utf-8").split())
@@ -554,9 +555,9 @@ def test_glossary_and_method_state_one_humidity_convention_below_freezing() -> N
     assert "over liquid water)" not in glossary
     # and the model does so: below 273.16 K the saturation pressure is the ice branch, which
     # is below the (extrapolated) liquid one (IAPWS: sublimation < vaporisation below 0 degC)
-    x, _ = gas.humid_air(263.15, 101325.0, 1.0)
-    p_w = float(x[gas.INDEX["H2O"]]) * 101325.0 / float(gas.enhancement_factor(263.15, 101325.0))
-    assert p_w == pytest.approx(float(gas.saturation_pressure(263.15)), rel=1e-9)
+    x, _ = humid_air.humid_air(263.15, 101325.0, 1.0)
+    p_w = float(x[INDEX["H2O"]]) * 101325.0 / float(humid_air.enhancement_factor(263.15, 101325.0))
+    assert p_w == pytest.approx(float(humid_air.saturation_pressure(263.15)), rel=1e-9)
     assert 255.0 < p_w < 265.0  # about 260 Pa over ice at -10 degC (from memory; water: 286)
 
 
@@ -589,22 +590,33 @@ def test_developers_md_layout_names_every_module_and_nothing_else() -> None:
     text = (ROOT / "DEVELOPERS.md").read_text(encoding="utf-8")
     layout = text.split("## Layout")[1].split("```")[1]
     listed: set[str] = set()
-    top = ""
+    # folders nest by indentation: a line whose first word is "name/" opens that folder for
+    # the lines indented deeper below it ("models/" > "  properties/" > "    species.py")
+    folders: list[tuple[int, str]] = []
     for line in layout.splitlines():
         if not line.strip():
             continue
-        if not line.startswith(" "):
+        indent = len(line) - len(line.lstrip())
+        while folders and folders[-1][0] >= indent:
+            folders.pop()
+        parent = folders[-1][1] if folders else ""
+        if not indent:  # a top-level folder; the rest of its line is prose
             top = line.split()[0]
             listed.add(top.rstrip("/"))
+            folders.append((indent, top))
             continue
-        for raw in line.split():
+        for n, raw in enumerate(line.split()):
             tok = raw.strip("`(),")
             if re.fullmatch(r"[a-z_0-9]+(\.py|\.html|/)", tok):
-                listed.add(f"{top}{tok}".rstrip("/"))
+                listed.add(f"{parent}{tok}".rstrip("/"))
+                if n == 0 and tok.endswith("/"):
+                    folders.append((indent, f"{parent}{tok}"))
     for p in sorted(listed):
         assert (ROOT / p).exists(), f"DEVELOPERS.md names {p}, which does not exist"
-    modules = {f"{d}/{p.name}" for d in ("models", "daemon") for p in (ROOT / d).glob("*.py")}
-    modules -= {"models/__init__.py", "daemon/__init__.py"}
+    # every module of models (at any depth) and of daemon's top level is named
+    modules = {p.relative_to(ROOT).as_posix() for p in (ROOT / "models").rglob("*.py")}
+    modules |= {f"daemon/{p.name}" for p in (ROOT / "daemon").glob("*.py")}
+    modules = {m for m in modules if not m.endswith("__init__.py")}
     assert sorted(modules - listed) == [], "modules missing from DEVELOPERS.md's layout"
     for name in ("RESULT_VALUE_COLUMNS", "RESULT_INPUT_COLUMNS"):
         assert hasattr(schema, name) and name in text
@@ -646,7 +658,8 @@ def test_demo_table_fits_80_columns_and_explains_its_abbreviations() -> None:
     assert "TIT (heat balance) 1120 degC" in line and "compressor efficiency 87.00 %" in line
 
 
-@pytest.mark.parametrize("module", ["models.ideal", "daemon.renames", "daemon.trend_cmd"])
+# models/ docstring examples are collected by pytest itself (pyproject: --doctest-modules)
+@pytest.mark.parametrize("module", ["daemon.renames", "daemon.trend_cmd"])
 def test_docstring_examples_run(module: str) -> None:
     mod = __import__(module, fromlist=["_"])
     result = doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE)

@@ -1,4 +1,4 @@
-"""ISO 3046-1 correction of engine power and fuel consumption (models.correction_iso3046).
+"""ISO 3046-1 correction of engine power and fuel consumption (models.correction.iso3046).
 
 Check values: the ISO 3046-1:2002 standard reference conditions (clause 5; clause number from
 memory), and the standard's worked examples of the power adjustment (a naturally aspirated
@@ -12,13 +12,10 @@ the examples use 9.6 / 3.2 kPa).  Spark-ignition factor: ISO 1585:1992 (from mem
 
 from __future__ import annotations
 
-import doctest
-
 import numpy as np
 import pytest
 
-from models import correction_iso3046 as iso
-from models.correction_iso3046 import (
+from models.correction.iso3046 import (
     ISO3046_EXPONENTS,
     STANDARD_REFERENCE,
     Iso3046Exponents,
@@ -192,8 +189,3 @@ def test_spark_ignition_factor() -> None:
     assert float(a) == pytest.approx(1.0, abs=1e-3)  # 100 kPa at 30 % RH is 99.05 kPa dry
     a, st = spark_ignition_correction_factor([85.0e3, 100.0e3], [298.0, 280.0], 0.3)
     assert (st == Reason.CORRECTION_UNAVAILABLE).all() and np.isnan(a).all()
-
-
-def test_docstring_examples_run() -> None:
-    result = doctest.testmod(iso, optionflags=doctest.NORMALIZE_WHITESPACE)
-    assert result.attempted >= 8 and result.failed == 0

@@ -1,4 +1,4 @@
-"""Whole engine (models.reciprocating_engine): forward model -> reconstruction round trips,
+"""Whole engine (models.units.reciprocating.engine): forward model -> reconstruction round trips,
 the forward energy balance against Cantera, element-wise bad data, trade ranges.
 
 Engines and operating points are invented (Kestrel Ridge Energy Park): KR-GE1, a 4.4 MW
@@ -16,23 +16,23 @@ from typing import Any
 import numpy as np
 import pytest
 
-from models import gas
 from models.components.reciprocating import (
     BSFC_G_PER_KWH,
     EngineGeometry,
     estimate_cutoff_ratio,
 )
-from models.correction_iso3046 import ISO3046_EXPONENTS
+from models.correction.iso3046 import ISO3046_EXPONENTS
 from models.cycles.reciprocating import diesel_efficiency, otto_efficiency
-from models.fuel import gas_fuel, liquid_fuel
-from models.reciprocating_engine import (
+from models.properties import humid_air
+from models.properties.fuel import gas_fuel, liquid_fuel
+from models.properties.species import INDEX, SPECIES
+from models.status import WARNING_REASONS, ModelInputError, Reason
+from models.units.reciprocating.engine import (
     MEASUREMENTS_OPTIONAL,
     MEASUREMENTS_REQUIRED,
     reconstruct_engine,
     simulate_engine,
 )
-from models.species import INDEX, SPECIES
-from models.status import WARNING_REASONS, ModelInputError, Reason
 
 RPM = 2 * math.pi / 60
 KR_GE1 = EngineGeometry(0.21, 0.24, 0.48, 20, 12.5)
@@ -245,7 +245,7 @@ def test_forward_exhaust_temperature_against_cantera_energy_balance() -> None:
             sensors[k][i]
             for k in ("ambient_temperature", "ambient_pressure", "ambient_relative_humidity")
         )
-        xa, _ = gas.humid_air(T0, p0, rh)
+        xa, _ = humid_air.humid_air(T0, p0, rh)
         air = {n: float(xa[INDEX[n]]) for n in names[:5]}
         m_f, m_a = sensors["fuel_mass_flow"][i], sensors["air_mass_flow"][i]
         sol.TPX = T0, p0, air
@@ -355,12 +355,3 @@ def test_misuse_raises() -> None:
         reconstruct_engine(meas, KR_GE1, NG, cycle="otto", correction="iso3046")
     with pytest.raises(ModelInputError):
         reconstruct_engine(meas, KR_DG1, GAS_OIL, cycle="diesel", premixed=True)
-
-
-def test_docstring_examples_run() -> None:
-    import doctest
-
-    from models import reciprocating_engine
-
-    result = doctest.testmod(reciprocating_engine, optionflags=doctest.NORMALIZE_WHITESPACE)
-    assert result.attempted >= 5 and result.failed == 0

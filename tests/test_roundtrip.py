@@ -29,8 +29,8 @@ ct = pytest.importorskip("cantera")
 
 import cantera_engine as ce  # noqa: E402  (tests/ is on sys.path under pytest)
 
-from models.fuel import gas_fuel  # noqa: E402
-from models.gas_turbine import GAS_TURBINE  # noqa: E402
+from models.properties.fuel import gas_fuel  # noqa: E402
+from models.units.gas_turbine.schema import GAS_TURBINE  # noqa: E402
 
 # Invented fuel analyses for the Kestrel Ridge Energy Park (not from any real site).
 PIPELINE_GAS: Mapping[str, float] = {
@@ -127,7 +127,7 @@ def _check_recovered(values: Mapping[str, np.ndarray], truths: list[Mapping[str,
 # ------------------------------------------------------------------------------------------
 def test_heating_values_iso6976_vs_cantera() -> None:
     # Source: Cantera's formation enthalpies (NASA TM-4513 data, nasa_gas.yaml) against the
-    # ISO 6976:2016 net heating value at 25 degC of models.fuel: the only heat-release
+    # ISO 6976:2016 net heating value at 25 degC of models.properties.fuel: the only heat-release
     # difference between the forward model and the inverse.  Expect <= 0.1 %.
     for fuel in FUELS.values():
         iso = float(gas_fuel(dict(fuel)).lhv)

@@ -2,7 +2,7 @@
 idempotent replays and a database outage.
 
 References for the check values:
-- The stored KPIs are compared with ``models.gas_turbine.GAS_TURBINE.compute`` called directly on
+- The stored KPIs are compared with ``models.units.gas_turbine.schema.GAS_TURBINE.compute`` called directly on
   the same SI inputs (the daemon must add nothing and lose nothing on the way: MQTT, unit
   conversion, assembly, batching, SQL).
 - Heat rate × thermal efficiency = 3600 kJ/kWh, since heat rate [kJ/kWh] = 3600 / η_th by the
@@ -48,8 +48,8 @@ from daemon.config import load_plant
 from daemon.runtime import Runtime
 from daemon.storage import schema as db_schema
 from daemon.types import Snapshot
-from models.gas_turbine import GAS_TURBINE
 from models.status import WARNING_REASONS, Reason
+from models.units.gas_turbine.schema import GAS_TURBINE
 
 
 def _plant(tmp_path: Path, *, broker_port: int = 1883, db: str = "sqlite://", **kw: Any) -> Any:

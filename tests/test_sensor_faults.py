@@ -10,7 +10,7 @@ References for the check values:
   computed; the heat rate (fuel flow × LHV / power) needs no T2 and stays computed.
 - Agreeing redundant sensors are combined by their arithmetic mean, and a difference beyond
   the allowed spread makes the pair unusable (common practice for two-out-of-two
-  measurements).  The combined result is compared with ``models.gas_turbine.GAS_TURBINE``
+  measurements).  The combined result is compared with ``models.units.gas_turbine.schema.GAS_TURBINE``
   called directly on the mean (the daemon must add nothing on the way).
 - A temperature difference in °C equals the same difference in K (NIST SP 811, 4.2.1.1), so a
   band or spread given in °C is used unscaled in K.
@@ -32,8 +32,8 @@ from daemon.assembly import Assembler
 from daemon.compute import bindings_from_plant, compute_batch
 from daemon.config import load_plant
 from daemon.feeds.decode import Decoder
-from models.gas_turbine import GAS_TURBINE
 from models.status import Reason
+from models.units.gas_turbine.schema import GAS_TURBINE
 
 EXAMPLE = Path(__file__).resolve().parent.parent / "daemon" / "examples" / "kestrel-ridge.toml"
 T0 = 1_780_315_200.0  # 2026-06-01T12:00:00Z, a multiple of 10 s

@@ -99,7 +99,7 @@ def test_parallel_upgrades_do_not_collide(store_url: str) -> None:
 
 def test_result_columns_cover_every_result_of_every_builtin_unit_type() -> None:
     # A new result of a unit type must come with a migration: this fails until it does.
-    from models.unit_types import builtin_unit_types
+    from models.units.registry import builtin_unit_types
 
     columns = set(schema.results.c.keys())
     for unit_type in builtin_unit_types().values():

@@ -1,6 +1,6 @@
 """``brayscope trend``: a known degradation goes through the whole path and comes back.
 
-The record is made by the forward cycle model (:func:`models.gas_turbine.simulate`) from a
+The record is made by the forward cycle model (:func:`models.units.gas_turbine.simulate.simulate`) from a
 compressor whose isentropic efficiency falls at a known rate between washes and whose
 post-wash level falls at a known slower rate (the usual picture of recoverable fouling plus
 non-recoverable wear: common practice).  Its sensor values, with noise, are reconstructed by
@@ -76,7 +76,7 @@ def eta_truth(t_op: np.ndarray) -> np.ndarray:
 @pytest.fixture(scope="module")
 def filled(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Path, dict[str, float]]:
     """A SQLite store with the known record; returns (plant file, db, facts)."""
-    from models.gas_turbine import simulate
+    from models.units.gas_turbine.simulate import simulate
 
     d = tmp_path_factory.mktemp("trend")
     db = d / "trend.sqlite"

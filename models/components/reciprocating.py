@@ -1,5 +1,11 @@
-"""Reciprocating engines: geometry, brake figures, combustion stoichiometry, charge air,
-turbocharger compressor, heat recovery and the cut-off ratio from fuel per cycle.
+"""Reciprocating engines: geometry, brake figures, stoichiometry, charge air, heat recovery.
+
+Length (about 1200 lines, above the project's 600): every engine-set component figure
+shares the engine geometry and one set of element-wise input checks; split by figure
+(geometry, stoichiometry, charge air, heat recovery) when the gas-engine and Diesel unit
+types are wired.
+
+Also the turbocharger compressor and the cut-off ratio from the fuel per cycle.
 
 Everything is SI: m, m3, kg, s, K, Pa (absolute), W, J/kg; engine speed is an angular speed
 in rad/s (rpm = 60 / (2 pi) x value; convert at the tag map, once).  The trade's display units
@@ -45,8 +51,8 @@ from typing import Literal
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas, machine
-from models.compressor import CompressorState, compressor
+from models.components import generator
+from models.components.compressor import CompressorState, compressor
 from models.cycles.reciprocating import (
     GAMMA_AIR,
     R_DRY_AIR,
@@ -55,9 +61,10 @@ from models.cycles.reciprocating import (
     dual_cycle,
     otto_cycle,
 )
-from models.fuel import FuelProperties
-from models.species import INDEX, SPECIES
-from models.status import ModelInputError, Reason
+from models.properties import humid_air, mixtures
+from models.properties.fuel import FuelProperties
+from models.properties.species import INDEX, SPECIES
+from models.status import ModelInputError, Reason, flag
 
 __all__ = [
     "BRAKE_EFFICIENCY_BAND",
@@ -100,19 +107,18 @@ BRAKE_EFFICIENCY_BAND: tuple[float, float] = (0.20, 0.52)
 TURBOCHARGER_EFFICIENCY_BAND: tuple[float, float] = (0.60, 0.88)
 
 
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
-
-
 Check = Literal["pos", "nonneg", "frac", "any"]
 
 
 def _inputs(
     *specs: tuple[ArrayLike, Check], shape: tuple[int, ...] | None = None
 ) -> tuple[list[FloatArray], StatusArray]:
-    """Broadcast inputs and flag them: NaN -> INPUT_MISSING; 'pos' needs > 0, 'nonneg' >= 0,
+    """Broadcast inputs and flag them.
+
+    NaN -> INPUT_MISSING; 'pos' needs > 0, 'nonneg' >= 0,
     'frac' 0 < x <= 1 (EFFICIENCY_OUT_OF_RANGE), else INPUT_NONPHYSICAL.  Flagged elements are
-    replaced by 1.0 so downstream arithmetic stays quiet; mask the results with the status."""
+    replaced by 1.0 so downstream arithmetic stays quiet; mask the results with the status.
+    """
     arrs = [np.asarray(v, dtype=np.float64) for v, _ in specs]
     full = np.broadcast_shapes(*(a.shape for a in arrs), *(() if shape is None else (shape,)))
     status = np.zeros(full, dtype=np.uint32)
@@ -129,9 +135,9 @@ def _inputs(
                 ok = (b > 0.0) & (b <= 1.0)
             else:
                 ok = np.isfinite(b)
-        _flag(status, miss, Reason.INPUT_MISSING)
+        flag(status, miss, Reason.INPUT_MISSING)
         reason = Reason.EFFICIENCY_OUT_OF_RANGE if kind == "frac" else Reason.INPUT_NONPHYSICAL
-        _flag(status, ~miss & ~ok, reason)
+        flag(status, ~miss & ~ok, reason)
         out.append(np.where(miss | ~ok, 1.0, b))
     return out, status
 
@@ -193,6 +199,7 @@ class EngineGeometry:
     strokes_per_cycle: int = 4
 
     def __post_init__(self) -> None:
+        """Check the geometry (raises ModelInputError)."""
         for name in ("bore", "stroke"):
             v = getattr(self, name)
             if not (isinstance(v, int | float) and math.isfinite(v) and v > 0):
@@ -253,8 +260,10 @@ class EngineGeometry:
         return self.strokes_per_cycle // 2
 
     def cycles_per_second(self, engine_speed: ArrayLike) -> FloatArray:
-        """Working cycles per second of one cylinder, n / n_R [1/s] (eq. 2), at ``engine_speed``
-        [rad/s]."""
+        """Return the working cycles per second of one cylinder, n / n_R [1/s] (eq. 2).
+
+        ``engine_speed`` in [rad/s].
+        """
         return np.asarray(
             np.asarray(engine_speed, dtype=np.float64) / (2 * math.pi) / self.revolutions_per_cycle,
             dtype=np.float64,
@@ -320,7 +329,7 @@ def brake_performance(
     generator_efficiency: ArrayLike = 1.0,
     mechanical_loss: ArrayLike = 0.0,
 ) -> BrakePerformance:
-    """Brake power, efficiency, heat rate, specific fuel consumption and BMEP.
+    r"""Brake power, efficiency, heat rate, specific fuel consumption and BMEP.
 
     Parameters
     ----------
@@ -348,7 +357,12 @@ def brake_performance(
 
     Notes
     -----
-    Equations (5)-(7) of the module: P_b from :func:`models.machine.shaft_power`;
+    .. math::
+
+        \eta_b = \frac{P_b}{m_f LHV}, \quad HR_b = \frac{m_f LHV}{P_b}, \quad
+        bsfc = \frac{m_f}{P_b}, \quad bmep = \frac{P_b\, n_R}{V_d\, n}
+
+    Equations (5)-(7) of the module: P_b from :func:`models.components.generator.shaft_power`;
     eta_b = P_b / (m_f LHV); HR_b = 1 / eta_b; bsfc = m_f / P_b;
     bmep = P_b n_R / (V_d n) with n = omega / (2 pi).  Heat rate and efficiency are on the LHV
     basis (the trade's default for engines, ISO 3046-1 [2]_).
@@ -378,13 +392,13 @@ def brake_performance(
         (engine_speed, "pos"),
         (lower_heating_value, "pos"),
     )
-    Pb, st = machine.shaft_power(Pg, generator_efficiency, mechanical_loss)
+    Pb, st = generator.shaft_power(Pg, generator_efficiency, mechanical_loss)
     status = np.asarray(status | st, dtype=np.uint32)
     Pb = np.where(np.isnan(Pb), 1.0, Pb)
     eta = Pb / (mf * lhv)
-    _flag(status, (status == 0) & (eta > 1.0), Reason.EFFICIENCY_OUT_OF_RANGE)
+    flag(status, (status == 0) & (eta > 1.0), Reason.EFFICIENCY_OUT_OF_RANGE)
     lo, hi = BRAKE_EFFICIENCY_BAND
-    _flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
+    flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
     n_cyc = geometry.cycles_per_second(w)
 
     def out(a: ArrayLike) -> FloatArray:
@@ -405,7 +419,7 @@ def brake_performance(
 def relative_efficiency(
     efficiency: ArrayLike, ideal_efficiency: ArrayLike
 ) -> tuple[FloatArray, StatusArray]:
-    """Relative efficiency: actual over ideal-cycle efficiency [-].
+    r"""Relative efficiency: actual over ideal-cycle efficiency [-].
 
     Parameters
     ----------
@@ -421,6 +435,12 @@ def relative_efficiency(
         cycle must bound the engine).
     status : ndarray of uint32
 
+    Notes
+    -----
+    .. math::
+
+        \eta_{rel} = \frac{\eta}{\eta_{ideal}}
+
     References
     ----------
     Heywood (2018), section 5.7 (comparison with real engine cycles) [1]_.
@@ -433,28 +453,36 @@ def relative_efficiency(
     """
     (eta, ideal), status = _inputs((efficiency, "frac"), (ideal_efficiency, "frac"))
     ratio = eta / ideal
-    _flag(status, (status == 0) & (ratio > 1.0), Reason.EFFICIENCY_OUT_OF_RANGE)
+    flag(status, (status == 0) & (ratio > 1.0), Reason.EFFICIENCY_OUT_OF_RANGE)
     return _nan(ratio, status), status
 
 
 # --------------------------------------------------------------------------------------------
 # Combustion stoichiometry
 # --------------------------------------------------------------------------------------------
-def dry_air() -> gas.Mixture:
-    """Dry air of :data:`models.gas.DRY_AIR` as a :class:`models.gas.Mixture`."""
-    return gas.Mixture.from_mole_fractions(gas.DRY_AIR)
+def dry_air() -> mixtures.Mixture:
+    r"""Dry air of :data:`models.properties.humid_air.DRY_AIR` as a mixture.
+
+    References
+    ----------
+    .. [1] ISO 2533:1975, Standard Atmosphere, Table 1 (composition of dry air).
+    """
+    return mixtures.Mixture.from_mole_fractions(humid_air.DRY_AIR)
 
 
-_M = gas.MOLAR_MASS
+_M = mixtures.MOLAR_MASS
 _I_O2 = INDEX["O2"]
 _NOT_H2O = np.array([s != "H2O" for s in SPECIES])
 
 
 def _o2_coefficients(
-    fuel: FuelProperties, air: gas.Mixture, basis: OxygenBasis
+    fuel: FuelProperties, air: mixtures.Mixture, basis: OxygenBasis
 ) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
-    """(c, a, b, A_st) of eq. (9), per kg of fuel: c mol O2 needed, a mol of stoichiometric
-    air, b mol change of the products (O2 consumed counted negative), on the basis."""
+    """Return (c, a, b, A_st) of eq. (9), per kg of fuel.
+
+    c mol O2 needed, a mol of stoichiometric air, b mol change of the products (O2 consumed
+    counted negative), on the basis.
+    """
     if basis not in ("dry", "wet"):
         raise ModelInputError("basis", basis, "'dry' or 'wet'")
     keep = _NOT_H2O if basis == "dry" else np.ones(len(SPECIES), dtype=bool)
@@ -476,19 +504,19 @@ def _o2_coefficients(
 def exhaust_oxygen(
     excess_air_ratio: ArrayLike,
     fuel: FuelProperties,
-    air: gas.Mixture | None = None,
+    air: mixtures.Mixture | None = None,
     basis: OxygenBasis = "dry",
 ) -> tuple[FloatArray, StatusArray]:
-    """Exhaust O2 mole fraction of complete lean combustion (forward of eq. 9).
+    r"""Exhaust O2 mole fraction of complete lean combustion (forward of eq. 9).
 
     Parameters
     ----------
     excess_air_ratio : array_like
         lambda = m_a / (m_f A_st) [-], >= 1.
     fuel : FuelProperties
-        From :func:`models.fuel.gas_fuel` (composition) or :func:`models.fuel.liquid_fuel`
-        (C/H/S/O mass fractions).
-    air : models.gas.Mixture, optional
+        From :func:`models.properties.fuel.gas_fuel` (composition) or
+        :func:`models.properties.fuel.liquid_fuel` (C/H/S/O mass fractions).
+    air : models.properties.mixtures.Mixture, optional
         Combustion air (humid air); default :func:`dry_air`.
     basis : {"dry", "wet"}
         Dry: water removed before the analyser (extractive, cooled sample); wet: in situ.
@@ -501,6 +529,10 @@ def exhaust_oxygen(
 
     Notes
     -----
+    .. math::
+
+        x_{O_2} = \frac{(\lambda - 1)\, c}{\lambda a + b}
+
     Per kg of fuel burnt in lambda A_st kg of air, complete combustion (C -> CO2, H -> H2O,
     S -> SO2):  x_O2 = (lambda - 1) c / (lambda a + b), with c the moles of O2 needed, a the
     moles of stoichiometric air and b the mole change of the fuel's products
@@ -514,7 +546,7 @@ def exhaust_oxygen(
 
     Examples
     --------
-    >>> from models.fuel import gas_fuel
+    >>> from models.properties.fuel import gas_fuel
     >>> x, _ = exhaust_oxygen([1.0, 2.0], gas_fuel({"CH4": 1.0}))
     >>> [round(float(v), 4) for v in x]
     [0.0, 0.1105]
@@ -522,7 +554,7 @@ def exhaust_oxygen(
     air = dry_air() if air is None else air
     c, a, b, _ = _o2_coefficients(fuel, air, basis)
     (lam,), status = _inputs((excess_air_ratio, "pos"), shape=np.broadcast(c, a).shape)
-    _flag(status, (status == 0) & (lam < 1.0), Reason.INPUT_NONPHYSICAL)
+    flag(status, (status == 0) & (lam < 1.0), Reason.INPUT_NONPHYSICAL)
     x = (lam - 1.0) * c / (lam * a + b)
     return _nan(x, status), status
 
@@ -530,10 +562,10 @@ def exhaust_oxygen(
 def excess_air_ratio_from_oxygen(
     oxygen: ArrayLike,
     fuel: FuelProperties,
-    air: gas.Mixture | None = None,
+    air: mixtures.Mixture | None = None,
     basis: OxygenBasis = "dry",
 ) -> tuple[FloatArray, StatusArray]:
-    """Excess-air ratio lambda from the measured exhaust O2 (inverse of eq. 9).
+    r"""Excess-air ratio lambda from the measured exhaust O2 (inverse of eq. 9).
 
     Parameters
     ----------
@@ -541,7 +573,7 @@ def excess_air_ratio_from_oxygen(
         Exhaust O2 mole fraction [mol/mol] (0.105, not 10.5 %), 0 <= x_O2 < x_O2 of the air
         on the same basis.
     fuel : FuelProperties
-    air : models.gas.Mixture, optional
+    air : models.properties.mixtures.Mixture, optional
         Combustion air; default :func:`dry_air`.
     basis : {"dry", "wet"}
         Basis of the analyser reading.
@@ -555,6 +587,10 @@ def excess_air_ratio_from_oxygen(
 
     Notes
     -----
+    .. math::
+
+        \lambda = \frac{c + x_{O_2} b}{c - x_{O_2} a}
+
     lambda = (c + x b) / (c - x a), the solution of eq. (9) for lambda; x = 0 gives 1 (a rich
     mixture also reads 0 % O2: lambda <= 1 cannot be told apart without CO).  The often
     quoted 20.9 / (20.9 - O2 %) ignores the contraction of the products and reads 4-8 % high
@@ -566,7 +602,7 @@ def excess_air_ratio_from_oxygen(
 
     Examples
     --------
-    >>> from models.fuel import gas_fuel
+    >>> from models.properties.fuel import gas_fuel
     >>> lam, _ = excess_air_ratio_from_oxygen(0.1105, gas_fuel({"CH4": 1.0}))
     >>> round(float(lam), 3)
     2.0
@@ -575,7 +611,7 @@ def excess_air_ratio_from_oxygen(
     c, a, b, _ = _o2_coefficients(fuel, air, basis)
     (x,), status = _inputs((oxygen, "any"), shape=np.broadcast(c, a).shape)
     x_air = c / a
-    _flag(status, (status == 0) & ~((x >= 0.0) & (x < x_air)), Reason.INPUT_NONPHYSICAL)
+    flag(status, (status == 0) & ~((x >= 0.0) & (x < x_air)), Reason.INPUT_NONPHYSICAL)
     with np.errstate(divide="ignore", invalid="ignore"):
         lam = (c + x * b) / (c - x * a)
     return _nan(lam, status), status
@@ -585,9 +621,9 @@ def excess_air_ratio_from_air_flow(
     air_mass_flow: ArrayLike,
     fuel_mass_flow: ArrayLike,
     fuel: FuelProperties,
-    air: gas.Mixture | None = None,
+    air: mixtures.Mixture | None = None,
 ) -> tuple[FloatArray, StatusArray]:
-    """Excess-air ratio lambda = m_a / (m_f A_st) from a measured air flow (eq. 8).
+    r"""Excess-air ratio lambda = m_a / (m_f A_st) from a measured air flow (eq. 8).
 
     Parameters
     ----------
@@ -596,7 +632,7 @@ def excess_air_ratio_from_air_flow(
     fuel_mass_flow : array_like
         m_f [kg/s], > 0.
     fuel : FuelProperties
-    air : models.gas.Mixture, optional
+    air : models.properties.mixtures.Mixture, optional
         Composition of the metered air, whose O2 fraction sets A_st; default dry air.
 
     Returns
@@ -605,9 +641,20 @@ def excess_air_ratio_from_air_flow(
         [-]; lambda < 1 (rich) is returned as computed.
     status : ndarray of uint32
 
+    Notes
+    -----
+    .. math::
+
+        \lambda = \frac{m_a}{m_f\, A_{st}}
+
+    References
+    ----------
+    .. [1] J. B. Heywood, *Internal Combustion Engine Fundamentals*, 2nd ed., McGraw-Hill,
+       2018, section 2.9.
+
     Examples
     --------
-    >>> from models.fuel import gas_fuel
+    >>> from models.properties.fuel import gas_fuel
     >>> lam, _ = excess_air_ratio_from_air_flow(3.44, 0.1, gas_fuel({"CH4": 1.0}))
     >>> round(float(lam), 3)
     1.995
@@ -626,11 +673,11 @@ def excess_air_ratio_from_air_flow(
 def charge_density(
     temperature: ArrayLike,
     pressure: ArrayLike,
-    fluid: gas.Mixture | None = None,
+    fluid: mixtures.Mixture | None = None,
     *,
     real_gas: bool = True,
 ) -> tuple[FloatArray, StatusArray]:
-    """Density of the charge in the receiver, rho = p / (Z R T) [kg/m3].
+    r"""Density of the charge in the receiver, rho = p / (Z R T) [kg/m3].
 
     Parameters
     ----------
@@ -638,25 +685,39 @@ def charge_density(
         Receiver (charge-air) temperature after the intercooler [K].
     pressure : array_like
         Receiver pressure [Pa], absolute.
-    fluid : models.gas.Mixture, optional
+    fluid : models.properties.mixtures.Mixture, optional
         Charge composition (humid air, or air and fuel gas for a premixed gas engine);
         default dry air.
     real_gas : bool
-        Include the compressibility factor Z of air (:func:`models.gas.compressibility`,
-        Lemmon et al. 2000 fit; about 1.001 at 4 bar and 320 K).
+        Include the compressibility factor Z of air
+        (:func:`models.properties.mixtures.compressibility`, Lemmon et al. 2000 fit; about 1.001 at
+        4 bar and 320 K).
 
     Returns
     -------
     rho : ndarray [kg/m3]
     status : ndarray of uint32
+
+    Notes
+    -----
+    .. math::
+
+        \rho = \frac{p}{Z R T}
+
+    References
+    ----------
+    .. [1] J. B. Heywood, *Internal Combustion Engine Fundamentals*, 2nd ed., McGraw-Hill,
+       2018, section 2.10.
     """
     mix = dry_air() if fluid is None else fluid
     (T, p), status = _inputs((temperature, "pos"), (pressure, "pos"), shape=mix.shape)
-    _flag(
-        status, (status == 0) & ((T < gas.T_MIN) | (T > gas.T_MAX)), Reason.TEMPERATURE_OUT_OF_RANGE
+    flag(
+        status,
+        (status == 0) & ((T < mixtures.T_MIN) | (T > mixtures.T_MAX)),
+        Reason.TEMPERATURE_OUT_OF_RANGE,
     )
-    _flag(status, (status == 0) & (p > gas.P_MAX_REAL), Reason.PRESSURE_OUT_OF_RANGE)
-    Z = gas.compressibility(np.where(status == 0, T, 300.0), np.where(status == 0, p, 1e5))
+    flag(status, (status == 0) & (p > mixtures.P_MAX_REAL), Reason.PRESSURE_OUT_OF_RANGE)
+    Z = mixtures.compressibility(np.where(status == 0, T, 300.0), np.where(status == 0, p, 1e5))
     rho = p / ((Z if real_gas else 1.0) * mix.R * T)
     return _nan(rho, status), status
 
@@ -668,9 +729,9 @@ def volumetric_efficiency(
     receiver_temperature: ArrayLike,
     receiver_pressure: ArrayLike,
     *,
-    fluid: gas.Mixture | None = None,
+    fluid: mixtures.Mixture | None = None,
 ) -> tuple[FloatArray, StatusArray]:
-    """Volumetric efficiency against the receiver (charge-air) density (eq. 10).
+    r"""Volumetric efficiency against the receiver (charge-air) density (eq. 10).
 
     Parameters
     ----------
@@ -681,7 +742,7 @@ def volumetric_efficiency(
         Engine speed omega [rad/s], > 0.
     receiver_temperature, receiver_pressure : array_like
         Charge-air temperature [K] and pressure [Pa] after the intercooler.
-    fluid : models.gas.Mixture, optional
+    fluid : models.properties.mixtures.Mixture, optional
         Composition of the charge; default dry air.
 
     Returns
@@ -691,6 +752,10 @@ def volumetric_efficiency(
 
     Notes
     -----
+    .. math::
+
+        \eta_v = \frac{m_{ch}}{\rho_{rec} V_d\, n / n_R}
+
     eta_v = m_ch / (rho_rec V_d n / n_R), rho_rec from :func:`charge_density`.  Referred to
     the receiver, not the ambient, so that boost is not counted as breathing; values of
     0.85-1.0 are usual for four-stroke engines, above 1 with scavenging overlap.  For a
@@ -711,17 +776,17 @@ def volumetric_efficiency(
 
 
 def turbocharger_compressor(
-    fluid: gas.Mixture,
+    fluid: mixtures.Mixture,
     inlet_temperature: ArrayLike,
     inlet_pressure: ArrayLike,
     outlet_temperature: ArrayLike,
     outlet_pressure: ArrayLike,
 ) -> CompressorState:
-    """Turbocharger compressor figures, ambient (inlet) to charge air before the intercooler.
+    r"""Turbocharger compressor figures, ambient (inlet) to charge air before the intercooler.
 
     Parameters
     ----------
-    fluid : models.gas.Mixture
+    fluid : models.properties.mixtures.Mixture
         Gas compressed: humid air, or the air-fuel mixture of a gas engine mixing upstream.
     inlet_temperature, inlet_pressure : array_like
         Compressor inlet [K], [Pa] (ambient, or after the inlet filter when measured).
@@ -730,37 +795,47 @@ def turbocharger_compressor(
 
     Returns
     -------
-    models.compressor.CompressorState
+    models.components.compressor.CompressorState
         ``pressure_ratio`` and ``isentropic_efficiency`` with the real-gas departure, as for
         the gas-turbine compressor; the ``EFFICIENCY_IMPLAUSIBLE`` warning uses
         :data:`TURBOCHARGER_EFFICIENCY_BAND`.
 
     Notes
     -----
-    :func:`models.compressor.compressor`: eta_c = (h2s - h1) / (h2 - h1).  With one
+    .. math::
+
+        \eta_c = \frac{h(T_{2s}, p_2) - h(T_1, p_1)}{h(T_2, p_2) - h(T_1, p_1)}
+
+    :func:`models.components.compressor.compressor`: eta_c = (h2s - h1) / (h2 - h1).  With one
     compressor stage per engine bank, pass each bank's readings separately.
+
+    References
+    ----------
+    .. [1] J. B. Heywood, *Internal Combustion Engine Fundamentals*, 2nd ed., McGraw-Hill,
+       2018, section 6.8 (turbocharger compressor).
+    .. [2] H. I. H. Saravanamuttoo et al., *Gas Turbine Theory*, 7th ed., 2017, section 2.1.
     """
     st = compressor(fluid, inlet_temperature, inlet_pressure, outlet_temperature, outlet_pressure)
     status = np.array(st.status & ~np.uint32(Reason.EFFICIENCY_IMPLAUSIBLE), dtype=np.uint32)
     eta = st.isentropic_efficiency
     lo, hi = TURBOCHARGER_EFFICIENCY_BAND
     with np.errstate(invalid="ignore"):
-        _flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
+        flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
     return replace(st, status=status)
 
 
 def exhaust_heat(
-    exhaust: gas.Mixture,
+    exhaust: mixtures.Mixture,
     exhaust_mass_flow: ArrayLike,
     temperature_in: ArrayLike,
     temperature_out: ArrayLike,
 ) -> tuple[FloatArray, StatusArray]:
-    """Heat given up by the exhaust in a recovery boiler, m_g (h(T_in) - h(T_out)) [W].
+    r"""Heat given up by the exhaust in a recovery boiler, m_g (h(T_in) - h(T_out)) [W].
 
     Parameters
     ----------
-    exhaust : models.gas.Mixture
-        Exhaust gas (e.g. :func:`models.combustor.exhaust_mixture`).
+    exhaust : models.properties.mixtures.Mixture
+        Exhaust gas (e.g. :func:`models.components.combustor.exhaust_mixture`).
     exhaust_mass_flow : array_like
         m_g [kg/s], > 0.
     temperature_in, temperature_out : array_like
@@ -770,6 +845,17 @@ def exhaust_heat(
     -------
     Q : ndarray [W]
     status : ndarray of uint32
+
+    Notes
+    -----
+    .. math::
+
+        Q = m_g \left(h_g(T_{in}) - h_g(T_{out})\right)
+
+    References
+    ----------
+    .. [1] J. B. Heywood, *Internal Combustion Engine Fundamentals*, 2nd ed., McGraw-Hill,
+       2018, section 2.8 (fuel energy balance).
     """
     (m, t_in, t_out), status = _inputs(
         (exhaust_mass_flow, "pos"),
@@ -777,9 +863,9 @@ def exhaust_heat(
         (temperature_out, "pos"),
         shape=exhaust.shape,
     )
-    _flag(status, (status == 0) & (t_out > t_in), Reason.INPUT_NONPHYSICAL)
+    flag(status, (status == 0) & (t_out > t_in), Reason.INPUT_NONPHYSICAL)
     q = m * (exhaust.h(t_in) - exhaust.h(t_out))
-    _flag(status, (status == 0) & np.isnan(q), Reason.TEMPERATURE_OUT_OF_RANGE)
+    flag(status, (status == 0) & np.isnan(q), Reason.TEMPERATURE_OUT_OF_RANGE)
     return _nan(q, status), status
 
 
@@ -811,7 +897,7 @@ def chp_efficiency(
     charge_air_cooler_heat: ArrayLike | None = None,
     exhaust_heat_recovered: ArrayLike | None = None,
 ) -> ChpEfficiency:
-    """Electrical, heat-recovery and total efficiency of a CHP engine set (eq. 11).
+    r"""Electrical, heat-recovery and total efficiency of a CHP engine set (eq. 11).
 
     Parameters
     ----------
@@ -821,8 +907,9 @@ def chp_efficiency(
         m_f [kg/s], > 0.
     lower_heating_value : array_like
         LHV [J/kg], > 0.
-    jacket_water_heat, lube_oil_heat, charge_air_cooler_heat, exhaust_heat_recovered : \
-array_like, optional
+    jacket_water_heat, lube_oil_heat, charge_air_cooler_heat : array_like, optional
+        As ``exhaust_heat_recovered``.
+    exhaust_heat_recovered : array_like, optional
         Useful heat recovered from each circuit [W], >= 0.  Leave out (None) a stream not
         recovered on site; a NaN element is a missing reading (the heat figures are NaN).
 
@@ -833,6 +920,10 @@ array_like, optional
 
     Notes
     -----
+    .. math::
+
+        \eta_{CHP} = \frac{P_{gen} + Q_{jw} + Q_{lo} + Q_{cac} + Q_{exh}}{m_f\, LHV}
+
     Only heat delivered to the user counts: a charge-air cooler whose low-temperature stage
     dumps to a radiator contributes its high-temperature stage only.  LHV basis.
 
@@ -866,7 +957,7 @@ array_like, optional
         q = q + h
     eta_q = q / fuel_heat
     total = eta_el + eta_q
-    _flag(status, (status == 0) & (total > 1.0), Reason.EFFICIENCY_OUT_OF_RANGE)
+    flag(status, (status == 0) & (total > 1.0), Reason.EFFICIENCY_OUT_OF_RANGE)
     return ChpEfficiency(
         thermal_efficiency=_nan(eta_el, status),
         heat_recovery_efficiency=_nan(eta_q, status),
@@ -884,7 +975,7 @@ def heat_input_per_charge(
     lower_heating_value: ArrayLike,
     combustion_efficiency: ArrayLike = 1.0,
 ) -> tuple[FloatArray, StatusArray]:
-    """Heat released per kg of trapped charge, q_in = eta_comb m_f LHV / m_ch [J/kg] (eq. 12).
+    r"""Heat released per kg of trapped charge, q_in = eta_comb m_f LHV / m_ch [J/kg] (eq. 12).
 
     Parameters
     ----------
@@ -907,8 +998,18 @@ def heat_input_per_charge(
 
     Notes
     -----
+    .. math::
+
+        q = \frac{\eta_{comb}\, m_{f,cyc}\, LHV}{m_{ch,cyc}}
+          = \frac{\eta_{comb}\, m_f\, LHV}{m_{ch}}
+
     Per cycle and cylinder, m_f,cyc = m_f / (z n_cyc) and m_ch,cyc = m_ch / (z n_cyc); the
     ratio is the same on a flow basis, so flows may be passed directly.
+
+    References
+    ----------
+    .. [1] J. B. Heywood, *Internal Combustion Engine Fundamentals*, 2nd ed., McGraw-Hill,
+       2018, section 5.3.
     """
     (mf, mch, lhv, eta), status = _inputs(
         (fuel_mass_flow, "pos"),
@@ -929,12 +1030,12 @@ def cycle_from_fuel(
     charge_mass_flow: ArrayLike,
     lower_heating_value: ArrayLike,
     peak_cylinder_pressure: ArrayLike | None = None,
-    fluid: gas.Mixture | None = None,
+    fluid: mixtures.Mixture | None = None,
     combustion_efficiency: ArrayLike = 1.0,
     gamma: ArrayLike = GAMMA_AIR,
     gas_constant: ArrayLike = R_DRY_AIR,
 ) -> ReciprocatingCycle:
-    """The ideal cycle of an engine from its measured fuel and trapped charge.
+    r"""Return the ideal cycle of an engine from its measured fuel and trapped charge.
 
     Parameters
     ----------
@@ -950,7 +1051,7 @@ def cycle_from_fuel(
         As :func:`heat_input_per_charge`.
     peak_cylinder_pressure : array_like, optional
         Measured peak cylinder pressure [Pa]; needed for ``"dual"``.
-    fluid : models.gas.Mixture, optional
+    fluid : models.properties.mixtures.Mixture, optional
         None: air standard (constant ``gamma``, ``gas_constant``); a mixture: variable
         properties.
     gamma, gas_constant : array_like, optional
@@ -960,6 +1061,17 @@ def cycle_from_fuel(
     -------
     models.cycles.reciprocating.ReciprocatingCycle
         ``cutoff_ratio`` is the estimate of :func:`estimate_cutoff_ratio`.
+
+    Notes
+    -----
+    .. math::
+
+        q = \frac{\eta_{comb}\, m_f\, LHV}{m_{ch}} \quad \text{(heat per kg of trapped charge)}
+
+    References
+    ----------
+    .. [1] J. B. Heywood, *Internal Combustion Engine Fundamentals*, 2nd ed., McGraw-Hill,
+       2018, section 5.3.
     """
     q, st = heat_input_per_charge(
         fuel_mass_flow, charge_mass_flow, lower_heating_value, combustion_efficiency
@@ -1000,11 +1112,11 @@ def estimate_cutoff_ratio(
     charge_mass_flow: ArrayLike,
     lower_heating_value: ArrayLike,
     peak_cylinder_pressure: ArrayLike | None = None,
-    fluid: gas.Mixture | None = None,
+    fluid: mixtures.Mixture | None = None,
     combustion_efficiency: ArrayLike = 1.0,
     gamma: ArrayLike = GAMMA_AIR,
 ) -> tuple[FloatArray, StatusArray]:
-    """Cut-off ratio of the ideal Diesel (or dual) cycle from fuel per cycle and charge.
+    r"""Cut-off ratio of the ideal Diesel (or dual) cycle from fuel per cycle and charge.
 
     Parameters
     ----------
@@ -1019,7 +1131,7 @@ def estimate_cutoff_ratio(
     peak_cylinder_pressure : array_like, optional
         Measured peak cylinder pressure [Pa]: the dual cycle, with part of the heat at
         constant volume.
-    fluid : models.gas.Mixture, optional
+    fluid : models.properties.mixtures.Mixture, optional
         None: constant specific heats (``gamma``); a mixture: variable properties.
     combustion_efficiency : array_like, optional
         [-] (default 1).
@@ -1033,6 +1145,11 @@ def estimate_cutoff_ratio(
 
     Notes
     -----
+    .. math::
+
+        r_c = \frac{T_{3b}}{T_{3a}}, \qquad \text{constant } c_p:\;
+        r_c = 1 + \frac{q}{c_p T_1 r^{\gamma - 1}}
+
     Method: the heat per kg of trapped charge q = eta_comb m_f,cyc LHV / m_ch,cyc (eq. 12) is
     added to the ideal cycle after isentropic compression from the receiver state by r; at
     constant pressure (Diesel), or at constant volume up to the measured peak pressure and

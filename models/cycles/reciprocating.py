@@ -1,5 +1,8 @@
 """Ideal comparison cycles of reciprocating engines: Otto, Diesel and dual (limited-pressure).
 
+Length (about 850 lines, above the project's 600): Otto, Diesel and dual cycles, each with
+constant and variable properties, share the state types and the isentrope solver.
+
 A closed system of unit mass of working fluid goes round four or five processes between
 bottom dead centre (BDC) and top dead centre (TDC).  Corners, in the order of
 :data:`CORNERS`::
@@ -23,12 +26,12 @@ Two property models
 and gas constant R; every corner in closed form, and the efficiencies reduce to the textbook
 relations (:func:`otto_efficiency`, :func:`diesel_efficiency`, :func:`dual_efficiency`).
 
-*Temperature-dependent properties* (``fluid=`` a :class:`models.gas.Mixture`): the same ideal
-gas of frozen composition with NASA-polynomial h(T) and s°(T).  Isentropes by volume follow
-``s°(T_b) - R ln T_b = s°(T_a) - R ln T_a + R ln(v_a / v_b)`` (Newton, vectorised, bounded);
+*Temperature-dependent properties* (``fluid=`` a :class:`models.properties.mixtures.Mixture`): the
+same ideal gas of frozen composition with NASA-polynomial h(T) and s°(T).  Isentropes by volume
+follow ``s°(T_b) - R ln T_b = s°(T_a) - R ln T_a + R ln(v_a / v_b)`` (Newton, vectorised, bounded);
 heat at constant volume raises u = h - R T, at constant pressure h.  No real-gas departure:
-cylinder pressures exceed the 6 MPa of :func:`models.gas.residual`, and the ideal cycle is an
-ideal-gas construct by definition.
+cylinder pressures exceed the 6 MPa of :func:`models.properties.mixtures.residual`, and the ideal
+cycle is an ideal-gas construct by definition.
 
 How a cycle is specified
 ------------------------
@@ -54,7 +57,7 @@ References
 .. [2] Y. A. Çengel, M. A. Boles, *Thermodynamics: An Engineering Approach*, McGraw-Hill,
    ch. 9 (Otto, Diesel and dual cycles; air-standard assumptions).
 .. [3] B. J. McBride, S. Gordon, M. A. Reno, NASA TM-4513, 1993 (property data of
-   :mod:`models.gas`).
+   :mod:`models.properties.mixtures`).
 """
 
 from __future__ import annotations
@@ -65,8 +68,8 @@ from typing import Literal, Protocol
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas
-from models.status import ModelInputError, Reason
+from models.properties import humid_air, mixtures
+from models.status import ModelInputError, Reason, flag
 
 __all__ = [
     "CORNERS",
@@ -88,15 +91,11 @@ StatusArray = NDArray[np.uint32]
 CORNERS: tuple[str, ...] = ("1", "2", "3a", "3b", "4")
 #: Ratio of specific heats of the cold-air standard [-].
 GAMMA_AIR: float = 1.4
-#: Specific gas constant of :data:`models.gas.DRY_AIR` [J/(kg K)] (287.04).
-R_DRY_AIR: float = float(gas.R_UNIVERSAL / (gas.DRY_AIR @ gas.MOLAR_MASS))
+#: Specific gas constant of :data:`models.properties.humid_air.DRY_AIR` [J/(kg K)] (287.04).
+R_DRY_AIR: float = float(mixtures.R_UNIVERSAL / (humid_air.DRY_AIR @ mixtures.MOLAR_MASS))
 
 _MAX_ITER = 25
 _T_TOL = 1e-9  # K, Newton step at convergence
-
-
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
 
 
 def _f(a: ArrayLike) -> FloatArray:
@@ -116,15 +115,15 @@ def _ratio_status(
         miss = np.isnan(vb)
         with np.errstate(invalid="ignore"):
             ok = vb > bound if strict else vb >= bound
-        _flag(status, miss, Reason.INPUT_MISSING)
-        _flag(status, ~miss & ~ok, Reason.INPUT_NONPHYSICAL)
+        flag(status, miss, Reason.INPUT_MISSING)
+        flag(status, ~miss & ~ok, Reason.INPUT_NONPHYSICAL)
     return status
 
 
 def otto_efficiency(
     compression_ratio: ArrayLike, gamma: ArrayLike = GAMMA_AIR
 ) -> tuple[FloatArray, StatusArray]:
-    """Thermal efficiency of the air-standard Otto cycle (constant specific heats).
+    r"""Thermal efficiency of the air-standard Otto cycle (constant specific heats).
 
     Parameters
     ----------
@@ -142,7 +141,7 @@ def otto_efficiency(
 
     Notes
     -----
-    .. math:: \\eta_{Otto} = 1 - r^{1-\\gamma}
+    .. math:: \eta_{Otto} = 1 - r^{1-\gamma}
 
     Independent of the heat added; valid for the ideal cycle on an ideal gas of constant
     specific heats only (with variable properties use :func:`otto_cycle` with ``fluid``).
@@ -168,7 +167,7 @@ def otto_efficiency(
 def diesel_efficiency(
     compression_ratio: ArrayLike, cutoff_ratio: ArrayLike, gamma: ArrayLike = GAMMA_AIR
 ) -> tuple[FloatArray, StatusArray]:
-    """Thermal efficiency of the air-standard Diesel cycle (constant specific heats).
+    r"""Thermal efficiency of the air-standard Diesel cycle (constant specific heats).
 
     Parameters
     ----------
@@ -189,7 +188,7 @@ def diesel_efficiency(
     Notes
     -----
     .. math::
-        \\eta_{Diesel} = 1 - r^{1-\\gamma} \\frac{r_c^{\\gamma} - 1}{\\gamma (r_c - 1)}
+        \eta_{Diesel} = 1 - r^{1-\gamma} \frac{r_c^{\gamma} - 1}{\gamma (r_c - 1)}
 
     At rc = 1 the limit is the Otto efficiency (taken exactly there).
 
@@ -217,7 +216,7 @@ def dual_efficiency(
     cutoff_ratio: ArrayLike,
     gamma: ArrayLike = GAMMA_AIR,
 ) -> tuple[FloatArray, StatusArray]:
-    """Thermal efficiency of the air-standard dual (limited-pressure) cycle.
+    r"""Thermal efficiency of the air-standard dual (limited-pressure) cycle.
 
     Parameters
     ----------
@@ -240,8 +239,8 @@ def dual_efficiency(
     Notes
     -----
     .. math::
-        \\eta_{dual} = 1 - r^{1-\\gamma}
-        \\frac{\\alpha r_c^{\\gamma} - 1}{(\\alpha - 1) + \\alpha \\gamma (r_c - 1)}
+        \eta_{dual} = 1 - r^{1-\gamma}
+        \frac{\alpha r_c^{\gamma} - 1}{(\alpha - 1) + \alpha \gamma (r_c - 1)}
 
     alpha = 1 gives the Diesel, rc = 1 the Otto efficiency.
 
@@ -317,9 +316,9 @@ class _ConstantCp:
 
 
 class _Variable:
-    """Ideal gas of frozen composition with NASA-polynomial properties (models.gas)."""
+    """Ideal gas of frozen composition with NASA-polynomial properties (a mixture)."""
 
-    def __init__(self, mix: gas.Mixture) -> None:
+    def __init__(self, mix: mixtures.Mixture) -> None:
         self.mix = mix
         self.R = mix.R
 
@@ -337,7 +336,7 @@ class _Variable:
         status: StatusArray,
     ) -> FloatArray:
         """Solve u(T) = target or s°(T) - R ln T = target for T (bounded Newton)."""
-        T = np.clip(np.array(T, dtype=np.float64), gas.T_MIN, gas.T_MAX)
+        T = np.clip(np.array(T, dtype=np.float64), mixtures.T_MIN, mixtures.T_MAX)
         done = np.zeros(T.shape, dtype=bool)
         pinned = np.zeros(T.shape, dtype=bool)
         for _ in range(_MAX_ITER):
@@ -348,15 +347,15 @@ class _Variable:
             else:
                 res = self.mix.s0(T) - self.R * np.log(T) - target
                 dT = res * T / cv
-            T_new = np.clip(T - dT, gas.T_MIN, gas.T_MAX)
+            T_new = np.clip(T - dT, mixtures.T_MIN, mixtures.T_MAX)
             pinned = (T_new != T - dT) & (np.abs(T_new - T) < _T_TOL)
             done = np.abs(T_new - T) < _T_TOL * np.maximum(1.0, T)
             T = T_new
             if done.all():
                 break
         oor = pinned & (status == 0)
-        _flag(status, oor, Reason.TEMPERATURE_OUT_OF_RANGE)
-        _flag(status, ~done & ~oor & (status == 0), Reason.NOT_CONVERGED)
+        flag(status, oor, Reason.TEMPERATURE_OUT_OF_RANGE)
+        flag(status, ~done & ~oor & (status == 0), Reason.NOT_CONVERGED)
         return T
 
     def isentropic_v(self, T: FloatArray, ratio: FloatArray, status: StatusArray) -> FloatArray:
@@ -377,8 +376,8 @@ class _Variable:
 def _check_range(status: StatusArray, *Ts: FloatArray) -> None:
     for T in Ts:
         with np.errstate(invalid="ignore"):
-            bad = ~((T >= gas.T_MIN) & (T <= gas.T_MAX))
-        _flag(status, bad & (status == 0), Reason.TEMPERATURE_OUT_OF_RANGE)
+            bad = ~((T >= mixtures.T_MIN) & (T <= mixtures.T_MAX))
+        flag(status, bad & (status == 0), Reason.TEMPERATURE_OUT_OF_RANGE)
 
 
 # --------------------------------------------------------------------------------------------
@@ -451,14 +450,16 @@ class ReciprocatingCycle:
 
 
 def _props(
-    fluid: gas.Mixture | None, gamma: ArrayLike, gas_constant: ArrayLike
+    fluid: mixtures.Mixture | None, gamma: ArrayLike, gas_constant: ArrayLike
 ) -> tuple[_Props, tuple[int, ...], FloatArray, FloatArray]:
     if fluid is None:
         g = _f(gamma)
         R = _f(gas_constant)
         return _ConstantCp(g, R), np.broadcast(g, R).shape, g, R
-    if not isinstance(fluid, gas.Mixture):
-        raise ModelInputError("fluid", type(fluid).__name__, "a models.gas.Mixture or None")
+    if not isinstance(fluid, mixtures.Mixture):
+        raise ModelInputError(
+            "fluid", type(fluid).__name__, "a models.properties.mixtures.Mixture or None"
+        )
     return _Variable(fluid), fluid.shape, np.asarray(2.0), fluid.R
 
 
@@ -466,7 +467,7 @@ def _props(
 class _Fluid:
     """The property model asked for: a mixture, or constant gamma and R."""
 
-    fluid: gas.Mixture | None
+    fluid: mixtures.Mixture | None
     gamma: ArrayLike
     gas_constant: ArrayLike
 
@@ -514,8 +515,8 @@ def _cycle(
         miss = np.isnan(vb)
         with np.errstate(invalid="ignore"):
             ok = vb > bound if strict else vb >= bound
-        _flag(status, miss, Reason.INPUT_MISSING)
-        _flag(status, ~miss & ~ok, Reason.INPUT_NONPHYSICAL)
+        flag(status, miss, Reason.INPUT_MISSING)
+        flag(status, ~miss & ~ok, Reason.INPUT_NONPHYSICAL)
         safe.append(np.where(miss | ~ok, fill, vb))
     T1s, p1s, rs, als, rcs, qs, pms = safe[:7]
     if fluid is None:
@@ -548,7 +549,7 @@ def _cycle(
                     T_peak = T2 * (pms / p2)
                 below = pms < p2  # peak below compression end: a Diesel cycle
                 above = T_peak > T_cv  # the heat cannot reach the peak: an Otto cycle
-                _flag(status, (below | above) & (status == 0), Reason.PEAK_PRESSURE_CLIPPED)
+                flag(status, (below | above) & (status == 0), Reason.PEAK_PRESSURE_CLIPPED)
                 T3a = np.where(below, T2, np.where(above, T_cv, T_peak))
             q_rest = np.maximum(qs - (props.u(T3a) - u2), 0.0)
             T3b = props.T_from_h(props.h(T3a) + q_rest, T3a, status)
@@ -599,11 +600,11 @@ def otto_cycle(
     *,
     cycle_heat_input: ArrayLike | None = None,
     peak_pressure_ratio: ArrayLike | None = None,
-    fluid: gas.Mixture | None = None,
+    fluid: mixtures.Mixture | None = None,
     gamma: ArrayLike = GAMMA_AIR,
     gas_constant: ArrayLike = R_DRY_AIR,
 ) -> ReciprocatingCycle:
-    """Ideal Otto cycle (all heat added at constant volume).
+    r"""Ideal Otto cycle (all heat added at constant volume).
 
     Parameters
     ----------
@@ -617,7 +618,7 @@ def otto_cycle(
         Heat added per unit mass of charge [J/kg], >= 0.  Give this or ``peak_pressure_ratio``.
     peak_pressure_ratio : array_like, optional
         alpha = p3/p2 [-], >= 1.
-    fluid : models.gas.Mixture, optional
+    fluid : models.properties.mixtures.Mixture, optional
         None (default): constant specific heats from ``gamma`` and ``gas_constant`` (the
         air-standard cycle).  A mixture: its temperature-dependent properties.
     gamma : array_like, optional
@@ -638,6 +639,10 @@ def otto_cycle(
 
     Notes
     -----
+    .. math::
+
+        u(T_3) = u(T_2) + q, \qquad \eta_{Otto} = 1 - r^{1 - \gamma} \;\text{(constant } c_v)
+
     Equations (1)-(3) of the module.  With constant specific heats
     ``T2 = T1 r^(gamma-1)``, ``T3 = T2 + q/cv``, ``T4 = T3 r^(1-gamma)`` and the efficiency
     equals :func:`otto_efficiency`; with a mixture it falls as the heat input rises (cv grows
@@ -678,11 +683,11 @@ def diesel_cycle(
     *,
     cycle_heat_input: ArrayLike | None = None,
     cutoff_ratio: ArrayLike | None = None,
-    fluid: gas.Mixture | None = None,
+    fluid: mixtures.Mixture | None = None,
     gamma: ArrayLike = GAMMA_AIR,
     gas_constant: ArrayLike = R_DRY_AIR,
 ) -> ReciprocatingCycle:
-    """Ideal Diesel cycle (all heat added at constant pressure).
+    r"""Ideal Diesel cycle (all heat added at constant pressure).
 
     Parameters
     ----------
@@ -696,7 +701,7 @@ def diesel_cycle(
         Heat added per unit mass of charge [J/kg], >= 0.  Give this or ``cutoff_ratio``.
     cutoff_ratio : array_like, optional
         rc = v3/v2 [-], >= 1.
-    fluid : models.gas.Mixture, optional
+    fluid : models.properties.mixtures.Mixture, optional
         None: constant specific heats (air standard); a mixture: its variable properties.
     gamma : array_like, optional
         cp/cv for constant specific heats [-] (default 1.4).
@@ -716,6 +721,10 @@ def diesel_cycle(
 
     Notes
     -----
+    .. math::
+
+        T_3 = T_2 + q / c_p, \quad r_c = T_3 / T_2, \quad T_4 = T_3 (r_c / r)^{\gamma - 1}
+
     Constant specific heats: ``T3 = T2 + q/cp`` (so ``rc = 1 + q/(cp T2)``),
     ``T4 = T3 (rc/r)^(gamma-1)``, efficiency :func:`diesel_efficiency`.  With a mixture,
     ``h(T3) = h(T2) + q``.
@@ -752,11 +761,11 @@ def dual_cycle(
     peak_cylinder_pressure: ArrayLike | None = None,
     peak_pressure_ratio: ArrayLike | None = None,
     cutoff_ratio: ArrayLike | None = None,
-    fluid: gas.Mixture | None = None,
+    fluid: mixtures.Mixture | None = None,
     gamma: ArrayLike = GAMMA_AIR,
     gas_constant: ArrayLike = R_DRY_AIR,
 ) -> ReciprocatingCycle:
-    """Ideal dual (limited-pressure) cycle: heat at constant volume, then constant pressure.
+    r"""Ideal dual (limited-pressure) cycle: heat at constant volume, then constant pressure.
 
     Parameters
     ----------
@@ -775,7 +784,7 @@ def dual_cycle(
         alpha = p3a/p2 [-], >= 1; give it with ``cutoff_ratio`` (instead of the heat form).
     cutoff_ratio : array_like, optional
         rc = v3b/v3a [-], >= 1.
-    fluid : models.gas.Mixture, optional
+    fluid : models.properties.mixtures.Mixture, optional
         None: constant specific heats (air standard); a mixture: its variable properties.
     gamma : array_like, optional
         cp/cv for constant specific heats [-] (default 1.4).
@@ -796,6 +805,11 @@ def dual_cycle(
 
     Notes
     -----
+    .. math::
+
+        T_{3a} = T_2 \frac{p_{peak}}{p_2}, \quad u(T_{3a}) = u(T_2) + q_v, \quad
+        h(T_{3b}) = h(T_{3a}) + (q - q_v)
+
     Heat form: T3a = T2 p_peak/p2 and ``u(T3a) = u(T2) + q_v``; the rest, q - q_v, raises
     h at constant pressure to T3b.  A peak pressure below p2 gives the Diesel cycle, one the
     heat input cannot reach gives the Otto cycle; both set ``PEAK_PRESSURE_CLIPPED``

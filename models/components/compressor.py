@@ -1,11 +1,12 @@
-"""Compressor: isentropic and polytropic efficiency, specific work and power from measured
-inlet and discharge states (station 1 → 2).
+"""Compressor: isentropic and polytropic efficiency, specific work and power (station 1 → 2).
+
+From the measured inlet and discharge states.
 
 Working fluid: humid air, composition held through the machine.  Enthalpy and entropy are the
-ideal-gas mixture values of :mod:`models.gas` plus the real-gas departure
-(:func:`models.gas.residual`) at the state's own pressure, so ``h(T, p) = h°(T) + Δh(T, p)``
-at stations 1, 2 and 2s.  The departure matters: for dry air at pressure ratio 15 it moves the
-isentropic efficiency by about 0.2 points, the size of a year of fouling.
+ideal-gas mixture values of :mod:`models.properties.mixtures` plus the real-gas departure
+(:func:`models.properties.mixtures.residual`) at the state's own pressure, so ``h(T, p) = h°(T) +
+Δh(T, p)`` at stations 1, 2 and 2s.  The departure matters: for dry air at pressure ratio 15 it
+moves the isentropic efficiency by about 0.2 points, the size of a year of fouling.
 
 Equations::
 
@@ -30,8 +31,8 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas
-from models.status import Reason
+from models.properties import mixtures
+from models.status import Reason, flag
 
 __all__ = [
     "COMPRESSOR_EFFICIENCY_BAND",
@@ -43,13 +44,9 @@ __all__ = [
 FloatArray = NDArray[np.float64]
 StatusArray = NDArray[np.uint32]
 
-#: Plausible compressor isentropic efficiency band [1] of large axial compressors in service
+#: Plausible compressor isentropic efficiency band [-] of large axial compressors in service
 #: (common practice); outside it ``EFFICIENCY_IMPLAUSIBLE`` is set as a warning.
 COMPRESSOR_EFFICIENCY_BAND: tuple[float, float] = (0.80, 0.92)
-
-
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
 
 
 @dataclass(frozen=True)
@@ -58,11 +55,11 @@ class CompressorState:
 
     Attributes
     ----------
-    pressure_ratio : p2/p1 [1]
+    pressure_ratio : p2/p1 [-]
     T2s : isentropic discharge temperature [K]
     h1, h2, h2s : enthalpies at stations 1, 2, 2s [J/kg] (sensible, real gas)
-    isentropic_efficiency : eta_c [1]
-    polytropic_efficiency : eta_p [1] (ideal gas)
+    isentropic_efficiency : eta_c [-]
+    polytropic_efficiency : eta_p [-] (ideal gas)
     specific_work : w_c = h2 - h1 [J/kg]
     status : Reason bits (uint32)
     """
@@ -82,18 +79,22 @@ def _check_states(T1: FloatArray, p1: FloatArray, T2: FloatArray, p2: FloatArray
     shape = np.broadcast(T1, p1, T2, p2).shape
     status = np.zeros(shape, dtype=np.uint32)
     missing = np.isnan(T1) | np.isnan(p1) | np.isnan(T2) | np.isnan(p2)
-    _flag(status, missing, Reason.INPUT_MISSING)
+    flag(status, missing, Reason.INPUT_MISSING)
     nonphys = ~missing & ~((T1 > 0.0) & (T2 > 0.0) & (p1 > 0.0) & (p2 > 0.0))
-    _flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
+    flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
     ok = ~missing & ~nonphys
-    _flag(status, ok & ~((T1 >= gas.T_MIN) & (T2 <= gas.T_MAX)), Reason.TEMPERATURE_OUT_OF_RANGE)
-    _flag(status, ok & ~(T2 > T1), Reason.DISCHARGE_NOT_HOTTER)
-    _flag(status, ok & ~(p2 > p1), Reason.PRESSURE_RATIO_INVALID)
+    flag(
+        status,
+        ok & ~((T1 >= mixtures.T_MIN) & (T2 <= mixtures.T_MAX)),
+        Reason.TEMPERATURE_OUT_OF_RANGE,
+    )
+    flag(status, ok & ~(T2 > T1), Reason.DISCHARGE_NOT_HOTTER)
+    flag(status, ok & ~(p2 > p1), Reason.PRESSURE_RATIO_INVALID)
     return status
 
 
 def compressor(
-    mix: gas.Mixture,
+    mix: mixtures.Mixture,
     T1: ArrayLike,
     p1: ArrayLike,
     T2: ArrayLike,
@@ -101,11 +102,11 @@ def compressor(
     *,
     real_gas: bool = True,
 ) -> CompressorState:
-    """Compressor performance from measured inlet and discharge states.
+    r"""Compressor performance from measured inlet and discharge states.
 
     Parameters
     ----------
-    mix : models.gas.Mixture
+    mix : models.properties.mixtures.Mixture
         Working fluid (humid air), one composition or one per element.
     T1, p1 : array_like
         Inlet temperature [K] and absolute pressure [Pa] (station 1).
@@ -120,10 +121,23 @@ def compressor(
 
     Notes
     -----
+    .. math::
+
+        \eta_c = \frac{h(T_{2s}, p_2) - h(T_1, p_1)}{h(T_2, p_2) - h(T_1, p_1)}, \qquad
+        s(T_{2s}, p_2) = s(T_1, p_1)
+
+        \eta_p = \frac{R \ln(p_2 / p_1)}{s^\circ(T_2) - s^\circ(T_1)}, \qquad w_c = h_2 - h_1
+
     Equations (1)-(5) of the module docstring.  Errors (NaN): ``INPUT_MISSING``,
     ``INPUT_NONPHYSICAL``, ``TEMPERATURE_OUT_OF_RANGE``, ``DISCHARGE_NOT_HOTTER``,
     ``PRESSURE_RATIO_INVALID``, ``NOT_CONVERGED``, ``EFFICIENCY_OUT_OF_RANGE``.  Warning
     (value kept): ``EFFICIENCY_IMPLAUSIBLE`` outside :data:`COMPRESSOR_EFFICIENCY_BAND`.
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, sections 2.1 and 2.2.
+    .. [2] ASME PTC 10-1997, Performance Test Code on Compressors and Exhausters.
     """
     T1a = np.asarray(T1, dtype=np.float64)
     p1a = np.asarray(p1, dtype=np.float64)
@@ -149,9 +163,9 @@ def compressor(
     w = h2 - h1
     eta = (h2s - h1) / w
     eta_p = mix.R * np.log(p2c / p1c) / (mix.s0(T2c) - mix.s0(T1c))
-    _flag(status, (status == 0) & ~((eta > 0.0) & (eta <= 1.0)), Reason.EFFICIENCY_OUT_OF_RANGE)
+    flag(status, (status == 0) & ~((eta > 0.0) & (eta <= 1.0)), Reason.EFFICIENCY_OUT_OF_RANGE)
     lo, hi = COMPRESSOR_EFFICIENCY_BAND
-    _flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
+    flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
     err = (status & ~np.uint32(Reason.EFFICIENCY_IMPLAUSIBLE)) != 0
 
     def nan(a: FloatArray) -> FloatArray:
@@ -171,15 +185,26 @@ def compressor(
 
 
 def compressor_discharge_temperature(
-    mix: gas.Mixture,
+    mix: mixtures.Mixture,
     T1: ArrayLike,
     p1: ArrayLike,
     p2: ArrayLike,
     isentropic_efficiency: ArrayLike,
 ) -> tuple[FloatArray, StatusArray]:
-    """Forward: discharge temperature [K] from the inlet state, p2 and eta_c (real gas).
+    r"""Forward: discharge temperature [K] from the inlet state, p2 and eta_c (real gas).
 
     ``h2 = h1 + (h2s - h1) / eta_c``, then T2 from h2 at p2 (Newton).
+
+    Notes
+    -----
+    .. math::
+
+        h(T_2, p_2) = h_1 + \frac{h(T_{2s}, p_2) - h_1}{\eta_c}
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, section 2.1.
     """
     T2s, st = mix.isentropic_T(T1, p1, p2, real_gas=True)
     h1 = mix.h_real(T1, p1)

@@ -4,15 +4,15 @@ A unit type is what a kind of machine needs to be monitored: the gas turbine now
 and Diesel sets later.  Feeds, storage, metrics and the CLI only ever talk to this interface, so
 a new unit type plugs in without touching them.
 
-The daemon may add unit types from the ``brayscope.unit_types`` entry-point group; ``models``
-itself only offers :func:`builtin_unit_types`.
+This module holds the interface only and imports no unit type: the shipped types are listed
+by :func:`models.units.registry.builtin_unit_types`, and the daemon may add more from the
+``brayscope.unit_types`` entry-point group.
 """
 
 from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from types import MappingProxyType
 from typing import Any, Protocol, runtime_checkable
 
 import numpy as np
@@ -22,7 +22,6 @@ __all__ = [
     "ComputeOutput",
     "FieldSpec",
     "UnitType",
-    "builtin_unit_types",
 ]
 
 FloatArray = NDArray[np.float64]
@@ -80,14 +79,10 @@ class UnitType(Protocol):
         parameters: Mapping[str, FloatArray | float],
         corrections: Any = None,
     ) -> ComputeOutput:
-        """Compute a batch.  ``measurements`` arrays share one shape ``(N,)``; missing
+        """Compute a batch.
+
+        ``measurements`` arrays share one shape ``(N,)``; missing
         optional measurements are absent or all-NaN.  ``fuel`` is the unit type's own fuel
-        description object; ``corrections`` its optional correction-table object."""
+        description object; ``corrections`` its optional correction-table object.
+        """
         ...
-
-
-def builtin_unit_types() -> Mapping[str, UnitType]:
-    """Return the unit types shipped with ``models`` as a read-only mapping name → type."""
-    from models.gas_turbine import GAS_TURBINE
-
-    return MappingProxyType({GAS_TURBINE.name: GAS_TURBINE})

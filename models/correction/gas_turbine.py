@@ -6,8 +6,8 @@ Two methods, always labelled in the results (``correction_method``):
     Model-based.  The measured component health (compressor and turbine isentropic
     efficiencies, combustor pressure loss, combustion efficiency, inlet and exhaust pressure
     ratios, losses) is held, a control law fixes the operating point, and the cycle is run
-    forward twice with :func:`models.gas_turbine.simulate`: at the measured ambient and at the
-    reference ambient.  Then::
+    forward twice with :func:`models.units.gas_turbine.simulate.simulate`: at the measured
+    ambient and at the reference ambient.  Then::
 
         P_corr  = P_meas  * P_model(ref) / P_model(meas)                    (1)
         HR_corr = HR_meas * HR_model(ref) / HR_model(meas)                  (2)
@@ -60,7 +60,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models.status import ModelInputError, Reason
+from models.status import ModelInputError, Reason, flag
 
 __all__ = [
     "REFERENCE_PRESSURE",
@@ -79,12 +79,8 @@ StatusArray = NDArray[np.uint32]
 REFERENCE_TEMPERATURE: float = 288.15
 #: Reference ambient pressure [Pa] (ISO 2314 / ISO 3977-2).
 REFERENCE_PRESSURE: float = 101325.0
-#: Reference ambient relative humidity [1] (ISO 2314 / ISO 3977-2).
+#: Reference ambient relative humidity [-] (ISO 2314 / ISO 3977-2).
 REFERENCE_RELATIVE_HUMIDITY: float = 0.60
-
-
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    status |= mask.astype(np.uint32) * np.uint32(reason)
 
 
 @dataclass(frozen=True)
@@ -95,9 +91,9 @@ class CorrectionCurve:
     ----------
     x : sequence of float
         Abscissa in SI: compressor inlet temperature [K], ambient pressure [Pa] or ambient
-        relative humidity [1]; at least two points, strictly increasing, finite.
+        relative humidity [-]; at least two points, strictly increasing, finite.
     factor : sequence of float
-        Correction factor [1] at each ``x``; finite and > 0.  Defined as the ratio of the
+        Correction factor [-] at each ``x``; finite and > 0.  Defined as the ratio of the
         quantity at ``x`` to the quantity at reference (so corrected = measured / factor).
     name : str, optional
         Label used in error messages.
@@ -108,6 +104,7 @@ class CorrectionCurve:
     name: str = "curve"
 
     def __post_init__(self) -> None:
+        """Check the table (raises ModelInputError)."""
         x = np.asarray(self.x, dtype=np.float64)
         f = np.asarray(self.factor, dtype=np.float64)
         if x.ndim != 1 or x.size < 2 or x.shape != f.shape:
@@ -143,7 +140,7 @@ class CorrectionTables:
 
     ``power_*`` curves give alpha (power ratio to reference), ``heat_rate_*`` curves give beta
     (heat-rate ratio to reference), each versus compressor inlet temperature [K], ambient
-    pressure [Pa] or ambient relative humidity [1].
+    pressure [Pa] or ambient relative humidity [-].
     """
 
     power_vs_inlet_temperature: CorrectionCurve | None = None
@@ -177,7 +174,7 @@ def curve_correction(
     power: ArrayLike,
     heat_rate: ArrayLike,
 ) -> tuple[FloatArray, FloatArray, StatusArray]:
-    """Correct power and heat rate to reference conditions with unit-supplied curves.
+    r"""Correct power and heat rate to reference conditions with unit-supplied curves.
 
     Parameters
     ----------
@@ -188,7 +185,7 @@ def curve_correction(
     ambient_pressure : array_like
         p0 [Pa].
     ambient_relative_humidity : array_like
-        RH [1] (fraction 0..1).
+        RH [-] (fraction 0..1).
     power : array_like
         Measured generator power [W].
     heat_rate : array_like
@@ -203,8 +200,18 @@ def curve_correction(
 
     Notes
     -----
+    .. math::
+
+        P_{corr} = \frac{P}{\alpha_T \alpha_p \alpha_{RH}}, \qquad
+        HR_{corr} = \frac{HR}{\beta_T \beta_p \beta_{RH}}
+
     ``P_corr = P / (alpha_T alpha_p alpha_RH)``, ``HR_corr = HR / (beta_T beta_p beta_RH)``,
     factors by linear interpolation, never extrapolated.
+
+    References
+    ----------
+    .. [1] ASME PTC 22-2014, Performance Test Code on Gas Turbines (correction curves).
+    .. [2] ISO 2314:2009, Gas turbines — Acceptance tests.
 
     Examples
     --------
@@ -246,7 +253,7 @@ def curve_correction(
     P_corr = P / alpha
     HR_corr = HR / beta
     unavailable = out_a | out_b | np.isnan(P_corr) | np.isnan(HR_corr)
-    _flag(status, unavailable, Reason.CORRECTION_UNAVAILABLE)
+    flag(status, unavailable, Reason.CORRECTION_UNAVAILABLE)
     bad = status != 0
     return np.where(bad, np.nan, P_corr), np.where(bad, np.nan, HR_corr), status
 
@@ -260,14 +267,14 @@ def reference_operating_point(
     reference_inlet_temperature: ArrayLike,
     reference_inlet_pressure: ArrayLike,
 ) -> tuple[FloatArray, FloatArray]:
-    """Pressure ratio and air flow at reference inlet conditions under the control law.
+    r"""Pressure ratio and air flow at reference inlet conditions under the control law.
 
     Parameters
     ----------
     compressor_inlet_temperature, compressor_inlet_pressure : array_like
         Measured T1 [K] and p1 [Pa].
     pressure_ratio : array_like
-        Measured compressor pressure ratio p2/p1 [1].
+        Measured compressor pressure ratio p2/p1 [-].
     air_mass_flow : array_like
         Measured or heat-balance air flow [kg/s].
     reference_inlet_temperature, reference_inlet_pressure : array_like
@@ -276,17 +283,29 @@ def reference_operating_point(
     Returns
     -------
     pressure_ratio_ref : ndarray
-        ``PR T1 / T1_ref`` [1].
+        ``PR T1 / T1_ref`` [-].
     air_mass_flow_ref : ndarray
         ``m_a (p1_ref / p1) (T1 / T1_ref)`` [kg/s].
 
     Notes
     -----
+    .. math::
+
+        m_{a,ref} = m_a \frac{\delta_{ref} / \delta}{\theta_{ref} / \theta}, \qquad
+        PR_{ref} = PR \frac{T_1}{T_{1,ref}}, \qquad
+        \theta = T_1 / T_{1,ref},\; \delta = p_1 / p_{1,ref}
+
     Constant inlet volume flow at fixed speed (``m_a ∝ p1 / T1``) and a choked first turbine
     nozzle at constant turbine inlet temperature (``m_g sqrt(T3)/p3`` constant, fuel-air ratio
     held): ``p3 / p1 ∝ m_a / p1 ∝ 1/theta``.  This is the simplest law that makes power fall
     with inlet temperature at the rate heavy-duty machines show; a unit with variable inlet
     guide vanes, inlet cooling or a part-load control mode needs a law of its own.
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, ch. 9 (off-design: choked nozzle,
+       corrected flow).
     """
     T1 = np.asarray(compressor_inlet_temperature, dtype=np.float64)
     p1 = np.asarray(compressor_inlet_pressure, dtype=np.float64)

@@ -1,9 +1,13 @@
 """Fuel chemistry: heating values, Wobbe index, stoichiometric air and combustion products.
 
-Gas fuels follow ISO 6976:2016 (component table in :mod:`models.iso6976_data`); liquid fuels are
-described by their lower heating value and C/H/S (optionally O) mass fractions.  Everything is
-SI: J/mol, J/kg, J/m^3, kg/mol, K, Pa.  All functions are vectorised: each composition value may
-be an array over a batch, and every result has that batch shape.
+Length (about 670 lines, above the project's 600): the ISO 6976 calculation, liquid fuels
+and the combustion products all fill one FuelProperties; half of it is documentation and
+the check values of the standard.
+
+Gas fuels follow ISO 6976:2016 (component table in :mod:`models.properties.iso6976_data`); liquid
+fuels are described by their lower heating value and C/H/S (optionally O) mass fractions.
+Everything is SI: J/mol, J/kg, J/m^3, kg/mol, K, Pa.  All functions are vectorised: each composition
+value may be an array over a batch, and every result has that batch shape.
 
 Reference conditions (state them with every reported number):
 
@@ -34,8 +38,9 @@ from typing import Literal
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import iso6976_data as iso
-from models.species import INDEX, N_SPECIES, SPECIES
+from models.properties import iso6976_data as iso
+from models.properties import mixtures
+from models.properties.species import INDEX, N_SPECIES, SPECIES
 from models.status import ModelInputError, Reason
 
 __all__ = [
@@ -56,7 +61,7 @@ FloatArray = NDArray[np.float64]
 StatusArray = NDArray[np.uint32]
 OnInvalid = Literal["raise", "nan"]
 
-#: Components accepted by :func:`gas_fuel` (names as in :data:`models.species.SPECIES`).
+#: Components accepted by :func:`gas_fuel` (names as in :data:`models.properties.species.SPECIES`).
 GAS_COMPONENTS: tuple[str, ...] = (
     "CH4",
     "C2H6",
@@ -92,8 +97,8 @@ _A = iso.ATOMIC_MASS
 _M_C, _M_H, _M_N, _M_O, _M_S = (_A["C"] * 1e-3, _A["H"] * 1e-3, _A["N"] * 1e-3,
                                 _A["O"] * 1e-3, _A["S"] * 1e-3)  # fmt: skip
 
-#: Molar masses of :data:`models.species.SPECIES` [kg/mol] on ISO 6976:2016's atomic masses, so
-#: that element balances (and ``product_delta`` summing to 1) hold to rounding.
+#: Molar masses of :data:`models.properties.species.SPECIES` [kg/mol] on ISO 6976:2016's atomic
+#: masses, so that element balances (and ``product_delta`` summing to 1) hold to rounding.
 SPECIES_MOLAR_MASS: FloatArray = iso.molar_mass(SPECIES)
 
 #: Standard dry air [mole fraction] over N2, O2, Ar, CO2: CIPM-2007 composition (Picard et al.,
@@ -131,8 +136,8 @@ class FuelProperties:
     stoichiometric_air : ndarray [kg dry air / kg fuel]  for :data:`STANDARD_DRY_AIR`
     carbon_mass_fraction, hydrogen_mass_fraction, sulfur_mass_fraction : ndarray [-]
     product_delta : ndarray (..., N_SPECIES) [kg / kg fuel]  change of each species of
-        :data:`models.species.SPECIES` when 1 kg of fuel burns completely in air: products and
-        inert fuel components +, O2 consumed −.  Sums to 1 over species.
+        :data:`models.properties.species.SPECIES` when 1 kg of fuel burns completely in air:
+        products and inert fuel components +, O2 consumed −.  Sums to 1 over species.
     composition : ndarray (..., N_SPECIES) or None  mole fractions (gas fuel only)
     liquid_cp : ndarray [J/(kg K)]  (NaN for gas)
     combustion_temperature, metering_temperature, wobbe_combustion_temperature [K]
@@ -183,28 +188,26 @@ class FuelProperties:
 
         Notes
         -----
-        Gas: ideal-gas mixture of the fuel's species, ``models.gas.Mixture`` (NASA polynomial
-        data), h(T) − h(298.15 K).  Liquid: ``liquid_cp · (T − 298.15 K)``.
+        Gas: ideal-gas mixture of the fuel's species, ``models.properties.mixtures.Mixture`` (NASA
+        polynomial data), h(T) − h(298.15 K).  Liquid: ``liquid_cp · (T − 298.15 K)``.
         """
         T_arr = np.asarray(T, dtype=np.float64)
         if self.kind == "liquid" or self.composition is None:
             return np.asarray(self.liquid_cp * (T_arr - REFERENCE_TEMPERATURE), dtype=np.float64)
-        from models import gas  # deferred: models.gas is optional for liquid-only use
-
         x = self.composition
         y = x * SPECIES_MOLAR_MASS
         y = y / np.sum(y, axis=-1, keepdims=True)
         if y.ndim == 1:
             # a single fuel: evaluate as a batch of one, then drop that axis again
-            out = np.asarray(gas.Mixture.from_mass_fractions(y[None, :]).h(T_arr[..., None]))
+            out = np.asarray(mixtures.Mixture.from_mass_fractions(y[None, :]).h(T_arr[..., None]))
             return np.asarray(out[..., 0], dtype=np.float64)
-        return np.asarray(gas.Mixture.from_mass_fractions(y).h(T_arr), dtype=np.float64)
+        return np.asarray(mixtures.Mixture.from_mass_fractions(y).h(T_arr), dtype=np.float64)
 
 
 def stoichiometric_air_ratio(
     fuel: FuelProperties, air_mass_fractions: Mapping[str, float] | ArrayLike
 ) -> FloatArray:
-    """Stoichiometric air of ``fuel`` for an air of given composition [kg air / kg fuel].
+    r"""Stoichiometric air of ``fuel`` for an air of given composition [kg air / kg fuel].
 
     Parameters
     ----------
@@ -215,6 +218,18 @@ def stoichiometric_air_ratio(
     Returns
     -------
     ndarray [kg/kg]  ``-product_delta[..., O2] / y_O2,air``
+
+    Notes
+    -----
+    .. math::
+
+        A_{st} = \frac{\nu_{O_2}}{y_{O_2,air}}
+
+    References
+    ----------
+    .. [1] ISO 6976:2016, Natural gas — Calculation of calorific values, density, relative
+       density and Wobbe indices from composition, clause 5 (composition); complete combustion
+       (common practice).
     """
     if isinstance(air_mass_fractions, Mapping):
         y_o2 = np.asarray(air_mass_fractions["O2"], dtype=np.float64)
@@ -354,7 +369,7 @@ def iso6976(
     metering_temperature_C: float = 15.0,
     pressure: float = 101325.0,
 ) -> dict[str, FloatArray]:
-    """Calorific values, density, relative density and Wobbe indices per ISO 6976:2016.
+    r"""Calorific values, density, relative density and Wobbe indices per ISO 6976:2016.
 
     Parameters
     ----------
@@ -375,6 +390,11 @@ def iso6976(
 
     Notes
     -----
+    .. math::
+
+        H_{c,G} = \sum_i x_i H_{c,G,i}, \quad H_{c,N} = H_{c,G} - \frac{\sum_i x_i b_i}{2} L^\circ,
+        \quad Z = 1 - \frac{p_2}{p_0} \left(\sum_i x_i s_i\right)^2, \quad W = \frac{H_v}{\sqrt{G}}
+
     With mole fractions x_i (ISO 6976:2016 clauses 5 to 9):
 
     * M = Σ x_i M_i;  Z(t2, p2) = 1 − (p2/p0) (Σ x_i s_i(t2))², p0 = 101.325 kPa
@@ -442,7 +462,7 @@ def gas_fuel(
     wobbe_combustion_temperature: float = 288.15,
     on_invalid: OnInvalid = "raise",
 ) -> FuelProperties:
-    """Properties of a gaseous fuel from its molar composition (ISO 6976:2016).
+    r"""Properties of a gaseous fuel from its molar composition (ISO 6976:2016).
 
     Parameters
     ----------
@@ -468,6 +488,11 @@ def gas_fuel(
 
     Notes
     -----
+    .. math::
+
+        \nu_{O_2} = \sum_i x_i \left(c_i + \frac{h_i}{4} + s_i - \frac{o_i}{2}\right), \qquad
+        A_{st} = \frac{\nu_{O_2} M_{O_2} / M}{y_{O_2,air}}
+
     Heating values per :func:`iso6976`.  Complete combustion: C → CO2, H → H2O, S → SO2,
     N → N2; Ar, He pass through; O2 demand per mol fuel = Σ x_i (c_i + h_i/4 + s_i − o_i/2).
     ``stoichiometric_air`` = O2 demand [kg/kg] / y_O2 of :data:`STANDARD_DRY_AIR`.
@@ -551,7 +576,7 @@ def liquid_fuel(  # noqa: PLR0917 (positional order is the published API)
     *,
     oxygen_mass_fraction: ArrayLike = 0.0,
 ) -> FuelProperties:
-    """Properties of a liquid fuel from its heating value and elemental analysis.
+    r"""Properties of a liquid fuel from its heating value and elemental analysis.
 
     Parameters
     ----------
@@ -569,6 +594,12 @@ def liquid_fuel(  # noqa: PLR0917 (positional order is the published API)
 
     Notes
     -----
+    .. math::
+
+        HHV = LHV + 8.937\, w_H\, L^\circ(25\,^\circ C), \qquad
+        \nu_{O_2} = M_{O_2} \left(\frac{w_C}{M_C} + \frac{w_H}{4 M_H} + \frac{w_S}{M_S}
+            - \frac{w_O}{2 M_O}\right)
+
     Water formed [kg/kg fuel] = w_H · M_H2O / (2 M_H) = 8.937 w_H (≈ 9 w_H);
     HHV = LHV + 8.937 w_H · L°(25 °C) with L° = 2443.1 kJ/kg (:data:`LATENT_HEAT_WATER_25C`).
     O2 demand [kg/kg] = M_O2 (w_C/M_C + w_H/(4 M_H) + w_S/M_S − w_O/(2 M_O)).

@@ -16,7 +16,7 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models.status import Reason
+from models.status import Reason, flag
 
 __all__ = ["generator_power", "shaft_power"]
 
@@ -24,21 +24,16 @@ FloatArray = NDArray[np.float64]
 StatusArray = NDArray[np.uint32]
 
 
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    """Set ``reason`` in ``status`` where ``mask`` (in place)."""
-    status |= mask.astype(np.uint32) * np.uint32(reason)
-
-
 def _loss_status(
     eta_gen: FloatArray, mechanical_loss: FloatArray
 ) -> tuple[NDArray[np.bool_], StatusArray]:
     status = np.zeros(np.broadcast(eta_gen, mechanical_loss).shape, dtype=np.uint32)
     missing = np.isnan(eta_gen) | np.isnan(mechanical_loss)
-    _flag(status, missing, Reason.INPUT_MISSING)
+    flag(status, missing, Reason.INPUT_MISSING)
     eff_bad = ~missing & ~((eta_gen > 0.0) & (eta_gen <= 1.0))
-    _flag(status, eff_bad, Reason.EFFICIENCY_OUT_OF_RANGE)
+    flag(status, eff_bad, Reason.EFFICIENCY_OUT_OF_RANGE)
     mech_bad = ~missing & ~(mechanical_loss >= 0.0)
-    _flag(status, mech_bad, Reason.INPUT_NONPHYSICAL)
+    flag(status, mech_bad, Reason.INPUT_NONPHYSICAL)
     return missing | eff_bad | mech_bad, status
 
 
@@ -47,14 +42,14 @@ def shaft_power(
     generator_efficiency: ArrayLike,
     mechanical_loss: ArrayLike = 0.0,
 ) -> tuple[FloatArray, StatusArray]:
-    """Shaft power from measured generator power.
+    r"""Shaft power from measured generator power.
 
     Parameters
     ----------
     generator_power : array_like
         Generator terminal power P_gen [W]; must be > 0.
     generator_efficiency : array_like
-        Generator efficiency eta_gen [1], 0 < eta_gen <= 1.
+        Generator efficiency eta_gen [-], 0 < eta_gen <= 1.
     mechanical_loss : array_like, optional
         Fixed mechanical and shaft-driven auxiliary loss P_mech [W], >= 0 (default 0).
 
@@ -67,8 +62,17 @@ def shaft_power(
 
     Notes
     -----
+    .. math::
+
+        P_{shaft} = \frac{P_{gen}}{\eta_{gen}} + P_{mech}
+
     ``P_shaft = P_gen / eta_gen + P_mech``.  Part-load dependence of the generator efficiency
     is left to the caller (pass an array).
+
+    References
+    ----------
+    .. [1] ASME PTC 22-2014, Performance Test Code on Gas Turbines (shaft power from the
+       generator output and its losses).
 
     Examples
     --------
@@ -82,8 +86,8 @@ def shaft_power(
     _, status = _loss_status(eta, mech)
     shape = np.broadcast(P, eta, mech).shape
     status = np.broadcast_to(status, shape).copy()
-    _flag(status, np.broadcast_to(np.isnan(P), shape), Reason.INPUT_MISSING)
-    _flag(status, np.broadcast_to(~np.isnan(P) & ~(P > 0.0), shape), Reason.INPUT_NONPHYSICAL)
+    flag(status, np.broadcast_to(np.isnan(P), shape), Reason.INPUT_MISSING)
+    flag(status, np.broadcast_to(~np.isnan(P) & ~(P > 0.0), shape), Reason.INPUT_NONPHYSICAL)
     with np.errstate(divide="ignore", invalid="ignore"):
         out = P / eta + mech
     out = np.where(status != 0, np.nan, out)
@@ -95,14 +99,14 @@ def generator_power(
     generator_efficiency: ArrayLike,
     mechanical_loss: ArrayLike = 0.0,
 ) -> tuple[FloatArray, StatusArray]:
-    """Generator power from shaft power (the inverse of :func:`shaft_power`).
+    r"""Return the generator power from the shaft power (the inverse of :func:`shaft_power`).
 
     Parameters
     ----------
     shaft_power : array_like
         Shaft power P_shaft [W].
     generator_efficiency : array_like
-        Generator efficiency eta_gen [1], 0 < eta_gen <= 1.
+        Generator efficiency eta_gen [-], 0 < eta_gen <= 1.
     mechanical_loss : array_like, optional
         Fixed mechanical loss P_mech [W], >= 0 (default 0).
 
@@ -116,7 +120,16 @@ def generator_power(
 
     Notes
     -----
+    .. math::
+
+        P_{gen} = \eta_{gen} \, (P_{shaft} - P_{mech})
+
     ``P_gen = eta_gen (P_shaft - P_mech)``.
+
+    References
+    ----------
+    .. [1] ASME PTC 22-2014, Performance Test Code on Gas Turbines (shaft power from the
+       generator output and its losses).
     """
     Ps = np.asarray(shaft_power, dtype=np.float64)
     eta = np.asarray(generator_efficiency, dtype=np.float64)
@@ -125,7 +138,7 @@ def generator_power(
     shape = np.broadcast(Ps, eta, mech).shape
     status = np.broadcast_to(status, shape).copy()
     out = eta * (Ps - mech)
-    _flag(status, np.isnan(out) & (status == 0), Reason.INPUT_MISSING)
-    _flag(status, ~np.isnan(out) & ~(out > 0.0), Reason.INPUT_NONPHYSICAL)
+    flag(status, np.isnan(out) & (status == 0), Reason.INPUT_MISSING)
+    flag(status, ~np.isnan(out) & ~(out > 0.0), Reason.INPUT_NONPHYSICAL)
     out = np.where(status != 0, np.nan, out)
     return out, status

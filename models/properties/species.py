@@ -1,6 +1,8 @@
-"""Species of brayscope's gas-phase property tables, in the fixed order of every composition
-array (last axis).  The first six are the working fluid and combustion products; the rest are
-fuel-gas components (needed for the fuel's own sensible enthalpy and for ISO 6976 chemistry).
+"""Species of brayscope's gas-phase property tables, in the order of every composition array.
+
+The order is that of the last axis.  The first six are the working fluid and combustion
+products; the rest are fuel-gas components (needed for the fuel's own sensible enthalpy and
+for ISO 6976 chemistry).
 """
 
 from __future__ import annotations

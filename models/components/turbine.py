@@ -1,5 +1,4 @@
-"""Turbine: isentropic efficiency and power from the turbine inlet and exhaust states
-(station 3 → 4).
+"""Turbine: isentropic efficiency and power from the inlet and exhaust states (station 3 → 4).
 
 Equations, per kg of exhaust gas (composition frozen through the expansion)::
 
@@ -7,8 +6,8 @@ Equations, per kg of exhaust gas (composition frozen through the expansion)::
     eta_t = (h3 - h4) / (h3 - h4s)                                                (2)
     w_t   = h3 - h4,  W_t = m_g w_t                                               (3)
 
-Enthalpy and entropy include the real-gas departure (:func:`models.gas.residual`) at each
-state's pressure.  With the heat-balance (mixed-mean) turbine inlet temperature of a cooled
+Enthalpy and entropy include the real-gas departure (:func:`models.properties.mixtures.residual`) at
+each state's pressure.  With the heat-balance (mixed-mean) turbine inlet temperature of a cooled
 turbine, eta_t is an *equivalent uncooled* efficiency: it lumps the cooling-air mixing losses
 and reads lower than the blade-row efficiency.
 
@@ -25,21 +24,17 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas
-from models.status import Reason
+from models.properties import mixtures
+from models.status import Reason, flag
 
 __all__ = ["TURBINE_EFFICIENCY_BAND", "TurbineState", "turbine", "turbine_exit_temperature"]
 
 FloatArray = NDArray[np.float64]
 StatusArray = NDArray[np.uint32]
 
-#: Plausible turbine isentropic efficiency on the heat-balance inlet temperature [1]
+#: Plausible turbine isentropic efficiency on the heat-balance inlet temperature [-]
 #: (common practice); outside it ``EFFICIENCY_IMPLAUSIBLE`` is set as a warning.
 TURBINE_EFFICIENCY_BAND: tuple[float, float] = (0.80, 0.95)
-
-
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
 
 
 @dataclass(frozen=True)
@@ -50,7 +45,7 @@ class TurbineState:
     ----------
     T4s : isentropic exhaust temperature [K]
     h3, h4, h4s : enthalpies [J/kg gas] (sensible, real gas)
-    isentropic_efficiency : eta_t [1]
+    isentropic_efficiency : eta_t [-]
     specific_work : w_t = h3 - h4 [J/kg gas]
     status : Reason bits
     """
@@ -65,7 +60,7 @@ class TurbineState:
 
 
 def turbine(
-    exhaust: gas.Mixture,
+    exhaust: mixtures.Mixture,
     T3: ArrayLike,
     p3: ArrayLike,
     T4: ArrayLike,
@@ -73,12 +68,12 @@ def turbine(
     *,
     h3: ArrayLike | None = None,
 ) -> TurbineState:
-    """Turbine performance from inlet and exhaust states.
+    r"""Turbine performance from inlet and exhaust states.
 
     Parameters
     ----------
-    exhaust : models.gas.Mixture
-        Exhaust-gas composition (e.g. :attr:`models.combustor.CombustorState.exhaust`).
+    exhaust : models.properties.mixtures.Mixture
+        Exhaust-gas composition (e.g. :attr:`models.components.combustor.CombustorState.exhaust`).
     T3, p3 : array_like
         Turbine inlet temperature [K] and pressure [Pa].
     T4, p4 : array_like
@@ -93,19 +88,29 @@ def turbine(
 
     Notes
     -----
+    .. math::
+
+        \eta_t = \frac{h_3 - h_4}{h_3 - h(T_{4s}, p_4)}, \qquad s(T_{4s}, p_4) = s(T_3, p_3),
+        \qquad w_t = h_3 - h_4
+
     Errors (NaN): INPUT_MISSING, INPUT_NONPHYSICAL, PRESSURE_RATIO_INVALID (p3 <= p4),
     NOT_CONVERGED, EFFICIENCY_OUT_OF_RANGE.  Warning: EFFICIENCY_IMPLAUSIBLE outside
     :data:`TURBINE_EFFICIENCY_BAND`.
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, section 2.1.
     """
     T3a, p3a, T4a, p4a = (np.asarray(v, dtype=np.float64) for v in (T3, p3, T4, p4))
     shape = np.broadcast(T3a, p3a, T4a, p4a, exhaust.M).shape
     status = np.zeros(shape, dtype=np.uint32)
     miss = np.isnan(T3a) | np.isnan(p3a) | np.isnan(T4a) | np.isnan(p4a)
-    _flag(status, np.broadcast_to(miss, shape), Reason.INPUT_MISSING)
+    flag(status, np.broadcast_to(miss, shape), Reason.INPUT_MISSING)
     nonphys = ~miss & ~((T3a > 0) & (T4a > 0) & (p3a > 0) & (p4a > 0))
-    _flag(status, np.broadcast_to(nonphys, shape), Reason.INPUT_NONPHYSICAL)
+    flag(status, np.broadcast_to(nonphys, shape), Reason.INPUT_NONPHYSICAL)
     ok = ~miss & ~nonphys
-    _flag(status, np.broadcast_to(ok & ~(p3a > p4a), shape), Reason.PRESSURE_RATIO_INVALID)
+    flag(status, np.broadcast_to(ok & ~(p3a > p4a), shape), Reason.PRESSURE_RATIO_INVALID)
     bad = status != 0
     T3c = np.where(bad, 1400.0, T3a)
     p3c = np.where(bad, 1.4e6, p3a)
@@ -117,9 +122,9 @@ def turbine(
     h4 = exhaust.h_real(T4c, p4c)
     h4s = exhaust.h_real(T4s, p4c)
     eta = (h3v - h4) / (h3v - h4s)
-    _flag(status, (status == 0) & ~((eta > 0) & (eta <= 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
+    flag(status, (status == 0) & ~((eta > 0) & (eta <= 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
     lo, hi = TURBINE_EFFICIENCY_BAND
-    _flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
+    flag(status, (status == 0) & ~((eta >= lo) & (eta <= hi)), Reason.EFFICIENCY_IMPLAUSIBLE)
     err = (status & ~np.uint32(Reason.EFFICIENCY_IMPLAUSIBLE)) != 0
 
     def nan(a: FloatArray) -> FloatArray:
@@ -137,15 +142,26 @@ def turbine(
 
 
 def turbine_exit_temperature(
-    exhaust: gas.Mixture,
+    exhaust: mixtures.Mixture,
     T3: ArrayLike,
     p3: ArrayLike,
     p4: ArrayLike,
     isentropic_efficiency: ArrayLike,
 ) -> tuple[FloatArray, StatusArray]:
-    """Forward: exhaust temperature [K] from the inlet state and eta_t.
+    r"""Forward: exhaust temperature [K] from the inlet state and eta_t.
 
     ``h4 = h3 - eta_t (h3 - h4s)``, then T4 from h4 at p4 (Newton, real gas).
+
+    Notes
+    -----
+    .. math::
+
+        h(T_4, p_4) = h_3 - \eta_t \left(h_3 - h(T_{4s}, p_4)\right)
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, section 2.1.
     """
     T4s, st = exhaust.isentropic_T(T3, p3, p4, real_gas=True)
     h3 = exhaust.h_real(T3, p3)

@@ -1,9 +1,12 @@
-"""Ideal-gas mixture properties, humid air and the real-gas departure of air-like gases.
+"""Ideal-gas mixture properties and the real-gas departure of air-like gases.
+
+Length (about 700 lines, above the project's 600): one class, the Mixture front, with its
+constructors, properties and three checked solvers; most of it is documentation.
 
 All quantities are SI: T [K], p [Pa] (absolute), h [J/kg], cp and s [J/(kg K)], molar mass
 [kg/mol], compositions as mole (``x``) or mass (``y``) fractions over
-:data:`models.species.SPECIES` on the last axis.  Every function is vectorised and broadcasts
-over a batch shape ``(...)``.
+:data:`models.properties.species.SPECIES` on the last axis.  Every function is vectorised and
+broadcasts over a batch shape ``(...)``.
 
 Exceptions and status
 ---------------------
@@ -11,31 +14,24 @@ Misuse by the caller (a composition with negative entries or not summing to 1, a
 length) raises :class:`models.status.ModelInputError`.  Bad plant data never raises: the affected
 elements are NaN and the solvers return a ``uint32`` status array of :class:`models.status.Reason`
 bits (``TEMPERATURE_OUT_OF_RANGE``, ``NOT_CONVERGED``, ``INPUT_MISSING``, ``INPUT_NONPHYSICAL``,
-``PRESSURE_OUT_OF_RANGE``, ``HUMIDITY_SATURATED``).  The plain property functions (``h``, ``cp``,
+``PRESSURE_OUT_OF_RANGE``).  The plain property functions (``h``, ``cp``,
 ``s0``, ``s``) return NaN outside ``T_MIN..T_MAX`` without a status array.
 
-Speed
------
-NASA polynomial coefficients are linear in the mass fractions, so a :class:`Mixture` stores its
-own mass-specific coefficient tables (computed once, ``y @ coefficients``) and every property
-evaluation is one Horner polynomial, not a loop over species.
+One engine
+----------
+A :class:`Mixture` is a checked front over the property kernel (:mod:`models.properties.kernel`):
+the species coefficient rows, their mixing (linear in the mass fractions, so each property is
+one Horner polynomial, not a loop over species), the real-gas departure and the Newton loop
+are the kernel's; this module adds the input checks, the status bits and the pressure and
+mixing terms of the entropy.  The gas-turbine reconstruction uses the same kernel directly.
 
 References
 ----------
 .. [1] B. J. McBride, S. Gordon, M. A. Reno, "Coefficients for Calculating Thermodynamic and
    Transport Properties of Individual Species", NASA TM-4513, 1993.
-.. [2] W. Wagner, A. Pruss, "The IAPWS formulation 1995 for the thermodynamic properties of
-   ordinary water substance for general and scientific use", J. Phys. Chem. Ref. Data 31
-   (2002) 387-535 (auxiliary vapour-pressure equation, eq. 2.5).
-.. [3] W. Wagner, T. Riethmann, R. Feistel, A. H. Harvey, "New equations for the sublimation
-   pressure and melting pressure of H2O ice Ih", J. Phys. Chem. Ref. Data 40 (2011) 043103
-   (IAPWS R14-08(2011)).
-.. [4] A. Picard, R. S. Davis, M. Glaeser, K. Fujii, "Revised formula for the density of moist
-   air (CIPM-2007)", Metrologia 45 (2008) 149-155.
-.. [5] E. W. Lemmon, R. T. Jacobsen, S. G. Penoncello, D. G. Friend, "Thermodynamic properties
+.. [2] E. W. Lemmon, R. T. Jacobsen, S. G. Penoncello, D. G. Friend, "Thermodynamic properties
    of air and mixtures of nitrogen, argon, and oxygen from 60 to 2000 K at pressures to
    2000 MPa", J. Phys. Chem. Ref. Data 29 (2000) 331-385.
-.. [6] ISO 2533:1975, Standard Atmosphere, Table 1 (composition of dry air).
 """
 
 from __future__ import annotations
@@ -47,27 +43,24 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import thermo_data as _td
-from models.species import INDEX, N_SPECIES, SPECIES
+from models.properties import kernel
+from models.properties import thermo_data as _td
+from models.properties.species import N_SPECIES, SPECIES
 from models.status import ModelInputError, Reason
 
 __all__ = [
-    "DRY_AIR",
     "MAX_ITER",
     "MOLAR_MASS",
     "P_MAX_REAL",
     "P_REF",
-    "RH_TOLERANCE",
     "R_UNIVERSAL",
     "T_MAX",
     "T_MIN",
     "T_REF",
     "Mixture",
+    "check_composition",
     "compressibility",
-    "enhancement_factor",
-    "humid_air",
     "residual",
-    "saturation_pressure",
 ]
 
 FloatArray = NDArray[np.float64]
@@ -78,13 +71,13 @@ T_MIN: float = 200.0
 #: Highest temperature the property functions accept [K].
 T_MAX: float = 3000.0
 #: Standard-state pressure of the NASA data [Pa].
-P_REF: float = 1.0e5
+P_REF: float = kernel.P_REF
 #: Reference temperature of the sensible enthalpy, h(T_REF) = 0 [K].
-T_REF: float = 298.15
+T_REF: float = kernel.T_REF
 #: Highest pressure of the real-gas departure fit [Pa].
 P_MAX_REAL: float = 6.0e6
 #: Molar gas constant [J/(mol K)].
-R_UNIVERSAL: float = _td.R_UNIVERSAL
+R_UNIVERSAL: float = kernel.R_UNIVERSAL
 #: Molar masses over SPECIES [kg/mol] (ISO 6976:2016 atomic weights).
 MOLAR_MASS: FloatArray = _td.MOLAR_MASS.copy()
 MOLAR_MASS.flags.writeable = False
@@ -92,107 +85,8 @@ MOLAR_MASS.flags.writeable = False
 MAX_ITER: int = 8
 #: Convergence criterion of the temperature solvers [K].
 _T_TOL: float = 1e-6
-#: Relative humidity above 1 accepted (and capped to 1) before it counts as nonphysical [-].
-RH_TOLERANCE: float = 1e-3
 #: Tolerance on the sum of a composition [-].
 _SUM_TOL: float = 1e-5
-_T_MID: float = 1000.0
-
-
-def _dry_air() -> FloatArray:
-    x = np.zeros(N_SPECIES)
-    # N2, O2, Ar: ISO 2533:1975 Table 1 (78.084, 20.9476, 0.934 % by volume); CO2 raised from
-    # that table's 0.0314 % to a present-day 400 ppm (common practice); normalised to sum 1.
-    x[INDEX["N2"]] = 0.78084
-    x[INDEX["O2"]] = 0.209476
-    x[INDEX["Ar"]] = 0.00934
-    x[INDEX["CO2"]] = 0.0004
-    x /= x.sum()
-    x.flags.writeable = False
-    return x
-
-
-#: Mole fractions of dry air over SPECIES (ISO 2533 with 400 ppm CO2, normalised).
-DRY_AIR: FloatArray = _dry_air()
-
-
-# --------------------------------------------------------------------------------------------
-# Species tables (module constants, read-only): mass-specific coefficients per range.
-# --------------------------------------------------------------------------------------------
-def _h_over_r(a: FloatArray, T: float) -> FloatArray:
-    """h/R [K] of NASA-7 rows a (n, 7) at T."""
-    out: FloatArray = a[:, 5] + T * (
-        a[:, 0] + T * (a[:, 1] / 2 + T * (a[:, 2] / 3 + T * (a[:, 3] / 4 + T * a[:, 4] / 5)))
-    )
-    return out
-
-
-def _s_over_r(a: FloatArray, T: float) -> FloatArray:
-    """s°/R [-] of NASA-7 rows a (n, 7) at T."""
-    out: FloatArray = (
-        a[:, 0] * np.log(T)
-        + T * (a[:, 1] + T * (a[:, 2] / 2 + T * (a[:, 3] / 3 + T * a[:, 4] / 4)))
-        + a[:, 6]
-    )
-    return out
-
-
-def _species_tables() -> tuple[FloatArray, FloatArray, FloatArray]:
-    if not np.all(_td.T_MID == _T_MID):
-        raise RuntimeError("thermo_data: every species must break at 1000 K")  # pragma: no cover
-    r_i = R_UNIVERSAL / _td.MOLAR_MASS  # J/(kg K)
-    lo = _td.COEFF_LOW.copy()
-    hi = _td.COEFF_HIGH.copy()
-    t = T_REF
-    h298 = t * (
-        lo[:, 0] + t * (lo[:, 1] / 2 + t * (lo[:, 2] / 3 + t * (lo[:, 3] / 4 + t * lo[:, 4] / 5)))
-    )
-    h298 += lo[:, 5]
-    lo[:, 5] -= h298  # sensible enthalpy: h(298.15 K) = 0 for every species
-    hi[:, 5] -= h298
-    # Make h and s exactly continuous at 1000 K (the published fits jump by a few parts per
-    # million there; a jump would leave the Newton solvers with no root in the gap).
-    t = _T_MID
-    hi[:, 5] += _h_over_r(lo, t) - _h_over_r(hi, t)
-    hi[:, 6] += _s_over_r(lo, t) - _s_over_r(hi, t)
-    a = np.stack([lo, hi]) * r_i[None, :, None]  # (2, n, 7)
-    # Polynomial coefficients in ascending powers of T (ln T term of s kept apart):
-    h_tab = np.stack(
-        [a[..., 5], a[..., 0], a[..., 1] / 2, a[..., 2] / 3, a[..., 3] / 4, a[..., 4] / 5], axis=1
-    )  # (2, 6, n): h = Σ c_k T^k
-    cp_tab = np.stack([a[..., k] for k in range(5)], axis=1)  # (2, 5, n): cp = Σ c_k T^k
-    s_tab = np.stack(
-        [a[..., 0], a[..., 1], a[..., 2] / 2, a[..., 3] / 3, a[..., 4] / 4, a[..., 6]], axis=1
-    )  # (2, 6, n): φ = c0 ln T + c1 T + c2 T² + c3 T³ + c4 T⁴ + c5
-    for tab in (h_tab, cp_tab, s_tab):
-        tab.flags.writeable = False
-    return h_tab, cp_tab, s_tab
-
-
-_H_TAB, _CP_TAB, _S_TAB = _species_tables()
-#: All three tables stacked on the row axis: rows 0-5 h, 6-10 cp, 11-16 s; shape (2*17, n).
-_ALL_TAB = np.concatenate([_H_TAB, _CP_TAB, _S_TAB], axis=1).reshape(2 * 17, N_SPECIES)
-_ALL_TAB.flags.writeable = False
-_H, _CP, _S = slice(0, 6), slice(6, 11), slice(11, 17)
-
-
-def _virial_tables() -> FloatArray:
-    i = np.arange(_td.AIR_VIRIAL_B.size, dtype=float)
-    b, c = _td.AIR_VIRIAL_B, _td.AIR_VIRIAL_C
-    # rows: Z-1, h_res/(R T), s_res/R, cp_res/R ; columns (pi-coefficients, pi^2-coefficients)
-    tab = np.array(
-        [
-            [b, c],
-            [i * b, i * c / 2],
-            [-(1 - i) * b, -(1 - i) * c / 2],
-            [i * (1 - i) * b, i * (1 - i) * c / 2],
-        ]
-    )
-    tab.flags.writeable = False
-    return tab
-
-
-_VIR = _virial_tables()  # (4, 2, n_terms)
 
 
 # --------------------------------------------------------------------------------------------
@@ -200,16 +94,6 @@ _VIR = _virial_tables()  # (4, 2, n_terms)
 # --------------------------------------------------------------------------------------------
 def _f(a: ArrayLike) -> FloatArray:
     return np.asarray(a, dtype=np.float64)
-
-
-def _horner(c: Any, T: FloatArray) -> FloatArray:
-    """c[-1]*T^(n-1) + ... + c[0] with in-place updates (c[k] broadcast against T)."""
-    out: FloatArray = c[-1] * T
-    for k in range(len(c) - 2, 0, -1):
-        out += c[k]
-        out *= T
-    out += c[0]
-    return out
 
 
 def _t_out_of_range(T: FloatArray) -> NDArray[np.bool_]:
@@ -247,37 +131,29 @@ def _compact(z: FloatArray, name: str) -> tuple[NDArray[np.intp], FloatArray]:
     return idx, zk
 
 
-def _check_composition(z: FloatArray, name: str) -> FloatArray:
-    """Validated, normalised full composition (..., N_SPECIES)."""
+def check_composition(z: FloatArray, name: str) -> FloatArray:
+    """Return a validated, normalised composition over all species.
+
+    Parameters
+    ----------
+    z : ndarray, shape (..., N_SPECIES)
+        Mole or mass fractions [-]; rows containing NaN pass through.
+    name : str
+        Name of the argument, for the error message.
+
+    Returns
+    -------
+    ndarray, shape (..., N_SPECIES)
+        The fractions, normalised to sum 1 [-].
+
+    Raises
+    ------
+    ModelInputError
+        Wrong last-axis length, negative fractions or a sum off 1 by more than 1e-5.
+    """
     idx, zk = _compact(z, name)
     out = np.zeros(z.shape)
     out[..., idx] = zk
-    return out
-
-
-def _range(T: FloatArray) -> int | NDArray[np.bool_]:
-    """0 if every T is in the low range, 1 if every T is in the high range, else the mask."""
-    with np.errstate(invalid="ignore"):
-        low = T <= _T_MID
-    if low.all():
-        return 0
-    if not low.any():
-        return 1
-    return low
-
-
-def _virial(T: FloatArray, p: FloatArray, rows: Sequence[int]) -> list[FloatArray]:
-    """Dimensionless departure terms (rows of _VIR) at T, p (unchecked)."""
-    tau = _td.AIR_VIRIAL_T_SCALE / T
-    pi = p / _td.AIR_VIRIAL_P_SCALE
-    out = []
-    for r in rows:
-        v1 = _horner(_VIR[r, 0], tau)
-        v2 = _horner(_VIR[r, 1], tau)
-        v2 *= pi
-        v2 += v1
-        v2 *= pi
-        out.append(v2)
     return out
 
 
@@ -292,8 +168,9 @@ def _status_like(shape: tuple[int, ...]) -> StatusArray:
 class Mixture:
     """An ideal-gas mixture of batch shape ``(...)``.
 
-    Build it with :meth:`from_mole_fractions` or :meth:`from_mass_fractions`; it stores the
-    mass-specific NASA coefficients of the mixture so each property is one polynomial.
+    Build it with :meth:`from_mole_fractions` or :meth:`from_mass_fractions`; its properties
+    come from a :class:`models.properties.kernel.Fluid` of the same composition (the mixture's
+    coefficient rows, built on first use, so each property is one polynomial).
 
     Attributes
     ----------
@@ -312,9 +189,7 @@ class Mixture:
     _s_mix: FloatArray = field(repr=False)  # -R sum x ln x [J/(kg K)]
     _cp_ref: FloatArray = field(repr=False)  # cp(298.15 K)
     _phi_ref: FloatArray = field(repr=False)  # s0(298.15 K)
-    _cache: dict[tuple[int, int], FloatArray] = field(
-        default_factory=dict, repr=False, compare=False
-    )  # coefficient rows per (range, kind), built on first use
+    _fluid: kernel.Fluid = field(repr=False, compare=False)  # the kernel's rows of this mixture
 
     # ---- construction ------------------------------------------------------------------
     @classmethod
@@ -356,7 +231,7 @@ class Mixture:
         s_mix = _f(-R * lx.sum(axis=-1))
         for a in (M, R, yk, s_mix):
             a.flags.writeable = False
-        mix = cls(M, R, idx, yk, s_mix, M, M)
+        mix = cls(M, R, idx, yk, s_mix, M, M, kernel.Fluid.from_mass_fractions(yk, R, idx))
         t = _f(T_REF)
         object.__setattr__(mix, "_cp_ref", _f(mix._cp_raw(t)))
         object.__setattr__(mix, "_phi_ref", _f(mix._phi_raw(t)))
@@ -387,60 +262,31 @@ class Mixture:
         """Ideal mixing entropy -R Σ x_i ln x_i [J/(kg K)]."""
         return self._s_mix
 
-    # ---- unchecked kernels ----------------------------------------------------------------
-    def _rows(self, r: int, rows: slice, T: FloatArray) -> FloatArray:
-        """Coefficient rows of range r, shaped to broadcast against T."""
-        key = (r, rows.start)
-        c = self._cache.get(key)
-        if c is None:
-            w = _ALL_TAB[r * 17 + rows.start : r * 17 + rows.stop][:, self._idx]
-            yk = self._yk
-            c = (w @ yk.reshape(-1, self._idx.size).T).reshape((w.shape[0], *self.shape))
-            c.flags.writeable = False
-            self._cache[key] = c
-        extra = T.ndim - self.M.ndim
-        if extra > 0:  # T has more leading dims than the mixture: unit axes after the rows
-            c = c.reshape((c.shape[0],) + (1,) * extra + c.shape[1:])
-        return c
+    # ---- the kernel (unchecked) -------------------------------------------------------------
+    def _fit(self, out: FloatArray, T: FloatArray) -> FloatArray:
+        """Reshape kernel output to the broadcast shape of T and the batch.
 
-    def _poly(self, rows: slice, T: FloatArray, r: int | NDArray[np.bool_]) -> FloatArray:
-        if isinstance(r, int):
-            return _horner(self._rows(r, rows, T), T)
-        out: FloatArray = np.where(
-            r, _horner(self._rows(0, rows, T), T), _horner(self._rows(1, rows, T), T)
-        )
-        return out
-
-    def _phi(self, T: FloatArray, r: int | NDArray[np.bool_]) -> FloatArray:
-        lnT = np.log(T)
-        parts = []
-        for k in (0, 1) if not isinstance(r, int) else (r,):
-            c = self._rows(k, _S, T)
-            out = _horner([0.0, c[1], c[2], c[3], c[4]], T)
-            out += c[0] * lnT
-            out += c[5]
-            parts.append(out)
-        if isinstance(r, int):
-            return parts[0]
-        res: FloatArray = np.where(r, parts[0], parts[1])
-        return res
+        The kernel keeps a unit batch axis for a mixture without one.
+        """
+        shape = np.broadcast_shapes(T.shape, self.shape)
+        return out if out.shape == shape else out.reshape(shape)
 
     def _h_raw(self, T: FloatArray) -> FloatArray:
-        return self._poly(_H, T, _range(T))
+        return self._fit(self._fluid.evaluate(kernel.H, T), T)
 
     def _cp_raw(self, T: FloatArray) -> FloatArray:
-        return self._poly(_CP, T, _range(T))
+        return self._fit(self._fluid.evaluate(kernel.CP, T), T)
 
     def _phi_raw(self, T: FloatArray) -> FloatArray:
-        return self._phi(T, _range(T))
+        return self._fit(self._fluid.evaluate(kernel.PHI, T), T)
 
     def _h_cp_raw(self, T: FloatArray) -> tuple[FloatArray, FloatArray]:
-        r = _range(T)
-        return self._poly(_H, T, r), self._poly(_CP, T, r)
+        h, cp = self._fluid.evaluate_with_cp(kernel.H, T)
+        return self._fit(h, T), self._fit(cp, T)
 
     def _phi_cp_raw(self, T: FloatArray) -> tuple[FloatArray, FloatArray]:
-        r = _range(T)
-        return self._phi(T, r), self._poly(_CP, T, r)
+        phi, cp = self._fluid.evaluate_with_cp(kernel.PHI, T)
+        return self._fit(phi, T), self._fit(cp, T)
 
     @staticmethod
     def _nan_out(out: FloatArray, T: FloatArray) -> FloatArray:
@@ -587,20 +433,17 @@ class Mixture:
             gbad = ~np.isfinite(T)
             T[gbad] = 1000.0
         np.clip(T, 100.0, 5000.0, out=T)
-        done = np.zeros(shape, dtype=bool)
-        for _ in range(MAX_ITER):
+
+        def step(T: FloatArray) -> FloatArray:
             hv, cpv = self._h_cp_raw(T)
             if pa is not None:
-                hr, cpr = _virial(T, pa, (1, 3))
-                hv = hv + self.R * T * hr
-                cpv = cpv + self.R * cpr
+                hv = hv + self.R * T * kernel.departure(kernel.DEPARTURE_H, T, pa)
+                cpv = cpv + self.R * kernel.departure(kernel.DEPARTURE_CP, T, pa)
             dT = hv - hw
             dT /= cpv
-            T -= dT
-            np.clip(T, 100.0, 5000.0, out=T)
-            done = np.abs(dT) < _T_TOL
-            if done.all():
-                break
+            return dT
+
+        T, done = kernel.newton(step, T, tol=_T_TOL, max_iter=MAX_ITER)
         return self._finish(T, done, status)
 
     def _check_p(self, p: FloatArray, shape: tuple[int, ...], status: StatusArray) -> FloatArray:
@@ -624,23 +467,20 @@ class Mixture:
         status: StatusArray,
         p_real: FloatArray | None,
     ) -> tuple[FloatArray, StatusArray]:
-        """Newton on φ(T) [+ s_res(T, p_real)] = phi_t, T modified in place."""
+        """Newton on φ(T) [+ s_res(T, p_real)] = phi_t from the guess T."""
         np.clip(T, 100.0, 5000.0, out=T)
-        done = np.zeros(T.shape, dtype=bool)
-        for _ in range(MAX_ITER):
+
+        def step(T: FloatArray) -> FloatArray:
             phi, cpv = self._phi_cp_raw(T)
             if p_real is not None:
-                sr, cpr = _virial(T, p_real, (2, 3))
-                phi = phi + self.R * sr
-                cpv = cpv + self.R * cpr
+                phi = phi + self.R * kernel.departure(kernel.DEPARTURE_S, T, p_real)
+                cpv = cpv + self.R * kernel.departure(kernel.DEPARTURE_CP, T, p_real)
             dT = phi - phi_t
             dT *= T
             dT /= cpv
-            T -= dT
-            np.clip(T, 100.0, 5000.0, out=T)
-            done = np.abs(dT) < _T_TOL
-            if done.all():
-                break
+            return dT
+
+        T, done = kernel.newton(step, T, tol=_T_TOL, max_iter=MAX_ITER)
         return self._finish(T, done, status)
 
     def T_from_s(
@@ -758,7 +598,7 @@ class Mixture:
         lnpr = np.log(p2b / p1b)
         phi_t = phi1 + self.R * lnpr
         if real_gas:
-            (sr1,) = _virial(Tb, p1b, (2,))
+            sr1 = kernel.departure(kernel.DEPARTURE_S, Tb, p1b)
             phi_t = phi_t + self.R * sr1
         # first estimate with cp(T1), then with cp at the geometric mean temperature
         dlnT = self.R * lnpr
@@ -796,7 +636,7 @@ class Mixture:
 # Real-gas departure
 # --------------------------------------------------------------------------------------------
 def residual(T: ArrayLike, p: ArrayLike, mix: Mixture) -> tuple[FloatArray, FloatArray]:
-    """Real-gas departure (h - h_ig) [J/kg] and (s - s_ig) [J/(kg K)] at the same T, p.
+    r"""Real-gas departure (h - h_ig) [J/kg] and (s - s_ig) [J/(kg K)] at the same T, p.
 
     Parameters
     ----------
@@ -809,8 +649,12 @@ def residual(T: ArrayLike, p: ArrayLike, mix: Mixture) -> tuple[FloatArray, Floa
 
     Notes
     -----
+    .. math::
+
+        h - h^{ig} = R T\, d_h(T, p), \qquad s - s^{ig} = R\, d_s(T, p)
+
     Pressure-explicit truncated virial form fitted to the Lemmon et al. (2000) air equation of
-    state [5]_ (fit in ``tools/gen_thermo_data.py``), with τ = 300 K / T, π = p / 1 MPa::
+    state [2]_ (fit in ``tools/gen_thermo_data.py``), with τ = 300 K / T, π = p / 1 MPa::
 
         Z - 1 = π Σ b_i τ^i + π² Σ c_i τ^i
         (h - h_ig)/(R T) = π Σ i b_i τ^i + (π²/2) Σ i c_i τ^i
@@ -819,12 +663,18 @@ def residual(T: ArrayLike, p: ArrayLike, mix: Mixture) -> tuple[FloatArray, Floa
     The molar departure of air is applied to any mixture (corresponding states on a molar
     basis): right for dry and humid air at compressor conditions, an approximation for
     combustion gas, where at turbine-inlet temperatures the departure is small anyway.
+
+    References
+    ----------
+    .. [1] E. W. Lemmon, R. T. Jacobsen, S. G. Penoncello, D. G. Friend, J. Phys. Chem. Ref.
+       Data 29 (2000) 331-385 (the equation of state the fit follows).
     """
     T = _f(T)
     p = _f(p)
     with np.errstate(invalid="ignore", divide="ignore"):
         bad = _t_out_of_range(T) | ~((p > 0) & (p <= P_MAX_REAL))
-        hr, sr = _virial(T, p, (1, 2))
+        hr = kernel.departure(kernel.DEPARTURE_H, T, p)
+        sr = kernel.departure(kernel.DEPARTURE_S, T, p)
     dh: FloatArray = mix.R * T * hr
     ds: FloatArray = mix.R * sr
     if np.any(bad):
@@ -834,137 +684,24 @@ def residual(T: ArrayLike, p: ArrayLike, mix: Mixture) -> tuple[FloatArray, Floa
 
 
 def compressibility(T: ArrayLike, p: ArrayLike) -> FloatArray:
-    """Compressibility factor Z = p/(ρ R T) of air [-] from the fit of :func:`residual`."""
+    r"""Compressibility factor Z = p/(ρ R T) of air [-] from the fit of :func:`residual`.
+
+    Notes
+    -----
+    .. math::
+
+        Z = 1 + \pi \sum_i b_i \tau^i + \pi^2 \sum_i c_i \tau^i, \quad \tau = T_s / T,\;
+        \pi = p / p_s
+
+    References
+    ----------
+    .. [1] E. W. Lemmon, R. T. Jacobsen, S. G. Penoncello, D. G. Friend, J. Phys. Chem. Ref.
+       Data 29 (2000) 331-385 (the equation of state the fit follows).
+    """
     T = _f(T)
     p = _f(p)
     with np.errstate(invalid="ignore", divide="ignore"):
         bad = _t_out_of_range(T) | ~((p > 0) & (p <= P_MAX_REAL))
-        (z1,) = _virial(T, p, (0,))
+        z1 = kernel.departure(kernel.DEPARTURE_Z, T, p)
     z: FloatArray = 1.0 + z1
     return np.where(bad, np.nan, z) if np.any(bad) else z
-
-
-# --------------------------------------------------------------------------------------------
-# Water vapour and humid air
-# --------------------------------------------------------------------------------------------
-_TC, _PC = 647.096, 22.064e6  # K, Pa: IAPWS-95 critical point
-_WP_A = (-7.85951783, 1.84408259, -11.7866497, 22.6807411, -15.9618719, 1.80122502)
-_TT, _PT = 273.16, 611.657  # K, Pa: triple point (IAPWS 2011)
-_SUB_A = (-0.212144006e2, 0.273203819e2, -0.610598130e1)
-_SUB_B = (0.333333333e-2, 0.120666667e1, 0.170333333e1)
-
-
-def saturation_pressure(T: ArrayLike) -> FloatArray:
-    """Saturation pressure of water [Pa] over liquid (T >= 273.16 K) or ice (below).
-
-    Parameters
-    ----------
-    T : array_like
-        Temperature [K]; NaN outside 50 K .. 647.096 K.
-
-    Notes
-    -----
-    Liquid, Wagner & Pruss (2002) eq. 2.5 [2]_, ϑ = 1 - T/T_c::
-
-        ln(p/p_c) = (T_c/T)(a1 ϑ + a2 ϑ^1.5 + a3 ϑ³ + a4 ϑ^3.5 + a5 ϑ⁴ + a6 ϑ^7.5)
-
-    Ice Ih, IAPWS R14-08(2011) [3]_, θ = T/T_t::
-
-        ln(p/p_t) = θ⁻¹ Σ a_i θ^(b_i)
-    """
-    T = _f(T)
-    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        v = 1.0 - T / _TC
-        a = _WP_A
-        # half-integer powers from one square root (v^1.5 = v sqrt(v), ...)
-        sv = np.sqrt(v)
-        v3 = v * v * v
-        half = a[1] * v + a[3] * v3 + a[5] * (v3 * v3 * v)  # times sqrt(v)
-        half *= sv
-        half += a[0] * v + a[2] * v3 + a[4] * (v3 * v)
-        half *= _TC / T
-        out: FloatArray = np.asarray(_PC * np.exp(half))
-        below = T < _TT
-        if below.any():  # the ice branch only where it is used
-            th = T[below] / _TT
-            ice = sum(ai * th**bi for ai, bi in zip(_SUB_A, _SUB_B, strict=True)) / th
-            out[below] = _PT * np.exp(ice)
-        out = np.where((T >= 50.0) & (T <= _TC), out, np.nan)
-    return out
-
-
-def enhancement_factor(T: ArrayLike, p: ArrayLike) -> FloatArray:
-    """Water-vapour enhancement factor f(T, p) of moist air [-].
-
-    Notes
-    -----
-    CIPM-2007 [4]_: f = 1.00062 + 3.14e-8 p + 5.6e-7 t², p [Pa], t [°C].  Stated for
-    600-1100 hPa and 15-27 °C; used here over the whole ambient range (the factor stays within
-    about 1.003-1.006, small beside RH sensor uncertainty).
-    """
-    t = _f(T) - 273.15
-    out: FloatArray = 1.00062 + 3.14e-8 * _f(p) + 5.6e-7 * t * t
-    return out
-
-
-def humid_air(
-    T: ArrayLike, p: ArrayLike, RH: ArrayLike, dry: ArrayLike = DRY_AIR
-) -> tuple[FloatArray, StatusArray]:
-    """Mole fractions (..., n_species) of humid air from T [K], p [Pa], RH [-].
-
-    Parameters
-    ----------
-    T : array_like
-        Air temperature [K].
-    p : array_like
-        Total (absolute) pressure [Pa].
-    RH : array_like
-        Relative humidity as a fraction 0..1 [-] (not percent).
-    dry : array_like
-        Dry-air mole fractions (..., n_species); default :data:`DRY_AIR`.
-
-    Returns
-    -------
-    x : ndarray (..., n_species)
-        Mole fractions; NaN rows where status has an error bit.
-    status : ndarray of uint32
-        HUMIDITY_SATURATED (warning) where RH >= 1 (values up to 1 + RH_TOLERANCE are capped to
-        1) or the vapour pressure reaches p; INPUT_NONPHYSICAL for RH < 0 or > 1 +
-        RH_TOLERANCE, T <= 0, p <= 0; INPUT_MISSING for NaN.
-
-    Notes
-    -----
-    x_w = RH · f(T, p) · p_sat(T) / p, x = (1 - x_w) x_dry + x_w e_H2O, with p_sat from
-    :func:`saturation_pressure` and f from :func:`enhancement_factor`.
-
-    Raises
-    ------
-    ModelInputError
-        ``dry`` is not a valid composition.
-    """
-    T = _f(T)
-    p = _f(p)
-    RH = _f(RH)
-    xd = _check_composition(_f(dry), "dry")
-    shape = np.broadcast_shapes(T.shape, p.shape, RH.shape, xd.shape[:-1])
-    status = _status_like(shape)
-    Tb, pb, rb = (np.broadcast_to(a, shape) for a in (T, p, RH))
-    miss = np.isnan(Tb) | np.isnan(pb) | np.isnan(rb)
-    with np.errstate(invalid="ignore"):
-        nonphys = ~miss & ((Tb <= 0) | (pb <= 0) | (rb < 0) | (rb > 1 + RH_TOLERANCE))
-        sat = ~miss & ~nonphys & (rb >= 1)
-    status[miss] |= np.uint32(Reason.INPUT_MISSING)
-    status[nonphys] |= np.uint32(Reason.INPUT_NONPHYSICAL)
-    rc = np.minimum(rb, 1.0)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        xw = rc * enhancement_factor(Tb, pb) * saturation_pressure(Tb) / pb
-        boil = xw >= 1.0
-    sat |= boil & (status == 0)
-    status[sat] |= np.uint32(Reason.HUMIDITY_SATURATED)
-    xw = np.minimum(xw, 1.0)
-    x = (1.0 - xw)[..., None] * xd
-    x[..., INDEX["H2O"]] += xw
-    err = (status & ~np.uint32(Reason.HUMIDITY_SATURATED)) != 0
-    if err.any():
-        x[err] = np.nan
-    return x, status

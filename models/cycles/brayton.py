@@ -1,5 +1,4 @@
-"""Comparison cycles: the air-standard Brayton cycle, the Brayton cycle on the real working
-fluid, and the Carnot bound.
+"""Comparison cycles: air-standard Brayton, Brayton on the real working fluid, Carnot bound.
 
 Reported beside the reconstructed thermal efficiency, the three tell where the gap to the
 ideal is: the air-standard figure is the cold-air limit at the measured pressure ratio, the
@@ -28,10 +27,10 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas
-from models.combustor import exhaust_mixture
-from models.fuel import FuelProperties
-from models.status import Reason
+from models.components.combustor import exhaust_mixture
+from models.properties import mixtures
+from models.properties.fuel import FuelProperties
+from models.status import Reason, flag
 
 __all__ = [
     "BraytonCycle",
@@ -44,27 +43,34 @@ FloatArray = NDArray[np.float64]
 StatusArray = NDArray[np.uint32]
 
 
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
-
-
 def air_standard_brayton_efficiency(
     pressure_ratio: ArrayLike, gamma: ArrayLike = 1.4
 ) -> tuple[FloatArray, StatusArray]:
-    """Thermal efficiency of the ideal air-standard Brayton cycle (cold-air standard).
+    r"""Thermal efficiency of the ideal air-standard Brayton cycle (cold-air standard).
 
     Parameters
     ----------
     pressure_ratio : array_like
-        Compressor pressure ratio r = p2/p1 [1], > 1.
+        Compressor pressure ratio r = p2/p1 [-], > 1.
     gamma : array_like, optional
-        Ratio of specific heats [1], > 1 (default 1.4, cold air).
+        Ratio of specific heats [-], > 1 (default 1.4, cold air).
 
     Returns
     -------
     eta : ndarray
-        ``1 - r**(-(gamma - 1)/gamma)`` [1]; NaN where r <= 1 or gamma <= 1.
+        ``1 - r**(-(gamma - 1)/gamma)`` [-]; NaN where r <= 1 or gamma <= 1.
     status : ndarray of uint32
+
+    Notes
+    -----
+    .. math::
+
+        \eta = 1 - r^{-(\gamma - 1)/\gamma}
+
+    References
+    ----------
+    .. [1] Y. A. Çengel, M. A. Boles, *Thermodynamics: An Engineering Approach*, 8th ed.,
+       McGraw-Hill, 2015, section 9-8 (ideal Brayton cycle, cold-air-standard).
 
     Examples
     --------
@@ -77,16 +83,16 @@ def air_standard_brayton_efficiency(
     r = np.asarray(pressure_ratio, dtype=np.float64)
     g = np.asarray(gamma, dtype=np.float64)
     status = np.zeros(np.broadcast(r, g).shape, dtype=np.uint32)
-    _flag(status, np.isnan(r) | np.isnan(g), Reason.INPUT_MISSING)
-    _flag(status, ~np.isnan(r) & ~(r > 1.0), Reason.PRESSURE_RATIO_INVALID)
-    _flag(status, ~np.isnan(g) & ~(g > 1.0), Reason.INPUT_NONPHYSICAL)
+    flag(status, np.isnan(r) | np.isnan(g), Reason.INPUT_MISSING)
+    flag(status, ~np.isnan(r) & ~(r > 1.0), Reason.PRESSURE_RATIO_INVALID)
+    flag(status, ~np.isnan(g) & ~(g > 1.0), Reason.INPUT_NONPHYSICAL)
     with np.errstate(invalid="ignore", divide="ignore"):
         eta = 1.0 - r ** (-(g - 1.0) / g)
     return np.where(status != 0, np.nan, eta), status
 
 
 def carnot_efficiency(T_cold: ArrayLike, T_hot: ArrayLike) -> tuple[FloatArray, StatusArray]:
-    """Carnot efficiency between two temperatures.
+    r"""Carnot efficiency between two temperatures.
 
     Parameters
     ----------
@@ -98,8 +104,19 @@ def carnot_efficiency(T_cold: ArrayLike, T_hot: ArrayLike) -> tuple[FloatArray, 
     Returns
     -------
     eta : ndarray
-        ``1 - T_cold / T_hot`` [1].
+        ``1 - T_cold / T_hot`` [-].
     status : ndarray of uint32
+
+    Notes
+    -----
+    .. math::
+
+        \eta_{Carnot} = 1 - \frac{T_{cold}}{T_{hot}}
+
+    References
+    ----------
+    .. [1] Y. A. Çengel, M. A. Boles, *Thermodynamics: An Engineering Approach*, 8th ed.,
+       McGraw-Hill, 2015, section 6-10.
 
     Examples
     --------
@@ -111,9 +128,9 @@ def carnot_efficiency(T_cold: ArrayLike, T_hot: ArrayLike) -> tuple[FloatArray, 
     Tc = np.asarray(T_cold, dtype=np.float64)
     Th = np.asarray(T_hot, dtype=np.float64)
     status = np.zeros(np.broadcast(Tc, Th).shape, dtype=np.uint32)
-    _flag(status, np.isnan(Tc) | np.isnan(Th), Reason.INPUT_MISSING)
-    _flag(status, ~(Tc > 0.0) & ~np.isnan(Tc), Reason.INPUT_NONPHYSICAL)
-    _flag(status, ~(Th > Tc) & ~np.isnan(Tc) & ~np.isnan(Th), Reason.INPUT_NONPHYSICAL)
+    flag(status, np.isnan(Tc) | np.isnan(Th), Reason.INPUT_MISSING)
+    flag(status, ~(Tc > 0.0) & ~np.isnan(Tc), Reason.INPUT_NONPHYSICAL)
+    flag(status, ~(Th > Tc) & ~np.isnan(Tc) & ~np.isnan(Th), Reason.INPUT_NONPHYSICAL)
     with np.errstate(invalid="ignore", divide="ignore"):
         eta = 1.0 - Tc / Th
     return np.where(status != 0, np.nan, eta), status
@@ -129,9 +146,9 @@ class BraytonCycle:
     T4s, T4 : turbine isentropic and actual exhaust temperature [K]
     compressor_work, turbine_work, net_work : [J/kg air]
     heat_input : [J/kg air] (h3 - h2 for air standard, f LHV with fuel)
-    back_work_ratio : compressor_work / turbine_work [1]
-    efficiency : net_work / heat_input [1]
-    fuel_air_ratio : [1] (0 for air standard)
+    back_work_ratio : compressor_work / turbine_work [-]
+    efficiency : net_work / heat_input [-]
+    fuel_air_ratio : [-] (0 for air standard)
     status : Reason bits
     """
 
@@ -150,7 +167,7 @@ class BraytonCycle:
 
 
 def brayton_cycle(
-    air: gas.Mixture,
+    air: mixtures.Mixture,
     T1: ArrayLike,
     p1: ArrayLike,
     pressure_ratio: ArrayLike,
@@ -162,20 +179,20 @@ def brayton_cycle(
     fuel_enthalpy: ArrayLike = 0.0,
     real_gas: bool = True,
 ) -> BraytonCycle:
-    """Simple Brayton cycle with variable properties (ideal when both efficiencies are 1).
+    r"""Compute a simple Brayton cycle with variable properties (ideal when both efficiencies 1).
 
     Parameters
     ----------
-    air : models.gas.Mixture
+    air : models.properties.mixtures.Mixture
         Working fluid at the compressor.
     T1, p1 : array_like
         Compressor inlet temperature [K] and pressure [Pa].
     pressure_ratio : array_like
-        r = p2/p1 [1]; the turbine expands back to p1 (no pressure losses).
+        r = p2/p1 [-]; the turbine expands back to p1 (no pressure losses).
     T3 : array_like
         Turbine inlet temperature [K].
     compressor_efficiency, turbine_efficiency : array_like, optional
-        Isentropic efficiencies [1] (default 1: the ideal cycle).
+        Isentropic efficiencies [-] (default 1: the ideal cycle).
     fuel : FuelProperties, optional
         None: air-standard cycle, heat added to the air itself.  Given: internal combustion of
         this fuel (complete, eta_b = 1), the turbine expands the exhaust gas and the heat
@@ -192,10 +209,22 @@ def brayton_cycle(
 
     Notes
     -----
+    .. math::
+
+        h_2 = h_1 + \frac{h_{2s} - h_1}{\eta_c}, \quad h_4 = h_3 - \eta_t (h_3 - h_{4s}), \quad
+        \eta = \frac{w_t - w_c}{q_{in}}
+
     ``T2s``: s(T2s, p2) = s(T1, p1); ``h2 = h1 + (h2s - h1)/eta_c``; with fuel
     ``h2 + f (h_f + LHV) = (1 + f) h_g(T3)`` solved for f in closed form (exhaust
     properties are linear in f per kg of air); ``T4s``: s(T4s, p1) = s(T3, p2);
     ``h4 = h3 - eta_t (h3 - h4s)``; ``eta = (w_t - w_c) / q_in``.
+
+    References
+    ----------
+    .. [1] H. I. H. Saravanamuttoo, G. F. C. Rogers, H. Cohen, P. V. Straznicky, A. C. Nix,
+       *Gas Turbine Theory*, 7th ed., Pearson, 2017, ch. 2.
+    .. [2] Y. A. Çengel, M. A. Boles, *Thermodynamics: An Engineering Approach*, 8th ed.,
+       McGraw-Hill, 2015, section 9-8.
 
     Examples
     --------
@@ -204,9 +233,10 @@ def brayton_cycle(
     1393.1 K, burning its pipeline gas; first ideal, then with the machine's reconstructed
     component efficiencies:
 
-    >>> from models.fuel import gas_fuel
-    >>> x, _ = gas.humid_air(291.45, 100850.0, 0.62)
-    >>> air = gas.Mixture.from_mole_fractions(x)
+    >>> from models.properties.fuel import gas_fuel
+    >>> from models.properties.humid_air import humid_air
+    >>> x, _ = humid_air(291.45, 100850.0, 0.62)
+    >>> air = mixtures.Mixture.from_mole_fractions(x)
     >>> fuel = gas_fuel({"CH4": 0.931, "C2H6": 0.038, "C3H8": 0.008, "n-C4H10": 0.0015,
     ...     "i-C4H10": 0.0012, "n-C5H12": 0.0003, "N2": 0.012, "CO2": 0.008})
     >>> ideal = brayton_cycle(air, 291.05, 99900.0, 15.0, 1393.1, fuel=fuel)
@@ -225,13 +255,13 @@ def brayton_cycle(
     eta_t = np.asarray(turbine_efficiency, dtype=np.float64)
     shape = np.broadcast(T1a, p1a, r, T3a, eta_c, eta_t, air.M).shape
     status = np.zeros(shape, dtype=np.uint32)
-    _flag(status, np.broadcast_to(~(r > 1.0), shape), Reason.PRESSURE_RATIO_INVALID)
-    _flag(status, np.broadcast_to(~(T3a > T1a) | ~(T1a > 0), shape), Reason.INPUT_NONPHYSICAL)
+    flag(status, np.broadcast_to(~(r > 1.0), shape), Reason.PRESSURE_RATIO_INVALID)
+    flag(status, np.broadcast_to(~(T3a > T1a) | ~(T1a > 0), shape), Reason.INPUT_NONPHYSICAL)
     eff_ok = (eta_c > 0) & (eta_c <= 1) & (eta_t > 0) & (eta_t <= 1)
-    _flag(status, np.broadcast_to(~eff_ok, shape), Reason.EFFICIENCY_OUT_OF_RANGE)
+    flag(status, np.broadcast_to(~eff_ok, shape), Reason.EFFICIENCY_OUT_OF_RANGE)
     p2 = p1a * r
 
-    def h(m: gas.Mixture, T: FloatArray, p: FloatArray) -> FloatArray:
+    def h(m: mixtures.Mixture, T: FloatArray, p: FloatArray) -> FloatArray:
         return m.h_real(T, p) if real_gas else m.h(T)
 
     T2s, st = air.isentropic_T(T1a, p1a, p2, real_gas=real_gas)
@@ -253,7 +283,7 @@ def brayton_cycle(
         hpd3 = ((1.0 + f0) * h(g0, T3a, p2) - ha3) / f0
         q = np.asarray(fuel_enthalpy) + fuel.lhv
         f = (ha3 - h2) / (q - hpd3)
-        _flag(status, np.broadcast_to(~(f > 0), shape), Reason.ENERGY_BALANCE_INFEASIBLE)
+        flag(status, np.broadcast_to(~(f > 0), shape), Reason.ENERGY_BALANCE_INFEASIBLE)
         g = exhaust_mixture(air, fuel, np.where(f > 0, f, 0.01))
         h3 = (ha3 + f * hpd3) / (1.0 + f)
         q_in = f * fuel.lhv

@@ -1,4 +1,10 @@
-"""Whole reciprocating engine: the forward model (:func:`simulate_engine`, plant-like sensor
+"""Whole reciprocating engine: forward model and reconstruction from one batch of measurements.
+
+Length (about 670 lines, above the project's 600): the forward model and the
+reconstruction share one energy balance and must stay exact inverses of each other, so they
+are kept side by side.
+
+The forward model (:func:`simulate_engine`, plant-like sensor
 values from engine health, ambient and load) and the reconstruction
 (:func:`reconstruct_engine`, every figure of :mod:`models.components.reciprocating`,
 the ideal cycles of :mod:`models.cycles.reciprocating` and the ISO 3046-1 correction from one
@@ -38,19 +44,20 @@ from typing import Literal
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas, machine
-from models.combustor import exhaust_mixture, stoichiometric_fuel_air_ratio
+from models.components import generator
 from models.components import reciprocating as rc
-from models.compressor import compressor_discharge_temperature
-from models.correction_iso3046 import (
+from models.components.combustor import exhaust_mixture, stoichiometric_fuel_air_ratio
+from models.components.compressor import compressor_discharge_temperature
+from models.correction.iso3046 import (
     STANDARD_REFERENCE,
     Iso3046Exponents,
     iso3046_correction,
     spark_ignition_correction_factor,
 )
 from models.cycles import reciprocating as cyc
-from models.fuel import FuelProperties
-from models.status import WARNING_REASONS, ModelInputError, Reason
+from models.properties import humid_air, mixtures
+from models.properties.fuel import FuelProperties
+from models.status import WARNING_REASONS, ModelInputError, Reason, flag
 
 __all__ = [
     "MEASUREMENTS_OPTIONAL",
@@ -96,35 +103,31 @@ MEASUREMENTS_OPTIONAL: tuple[str, ...] = (
 _ERR = ~np.uint32(WARNING_REASONS)
 
 
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
-
-
 def _arr(v: ArrayLike, shape: tuple[int, ...]) -> FloatArray:
     return np.array(np.broadcast_to(np.asarray(v, dtype=np.float64), shape), dtype=np.float64)
 
 
-def _air(T0: FloatArray, p0: FloatArray, rh: FloatArray) -> tuple[gas.Mixture, StatusArray]:
-    x, st = gas.humid_air(T0, p0, rh)
-    return gas.Mixture.from_mole_fractions(x), st
+def _air(T0: FloatArray, p0: FloatArray, rh: FloatArray) -> tuple[mixtures.Mixture, StatusArray]:
+    x, st = humid_air.humid_air(T0, p0, rh)
+    return mixtures.Mixture.from_mole_fractions(x), st
 
 
 def _charge(
-    air: gas.Mixture, fuel: FuelProperties, m_a: FloatArray, m_f: FloatArray, premixed: bool
-) -> gas.Mixture:
+    air: mixtures.Mixture, fuel: FuelProperties, m_a: FloatArray, m_f: FloatArray, premixed: bool
+) -> mixtures.Mixture:
     """Charge inducted: air, or air and fuel gas mixed upstream of the compressor."""
     if not premixed:
         return air
     if fuel.composition is None:
         raise ModelInputError("premixed", True, "a gas fuel (composition) for a premixed charge")
-    fuel_gas = gas.Mixture.from_mole_fractions(fuel.composition)
+    fuel_gas = mixtures.Mixture.from_mole_fractions(fuel.composition)
     with np.errstate(invalid="ignore"):
         wa = np.where(m_a > 0, m_a, np.nan)
         wf = np.where(m_f > 0, m_f, np.nan)
-    return gas.Mixture.blend([(air, wa), (fuel_gas, wf)])
+    return mixtures.Mixture.blend([(air, wa), (fuel_gas, wf)])
 
 
-def _stoich_air(air: gas.Mixture, fuel: FuelProperties) -> FloatArray:
+def _stoich_air(air: mixtures.Mixture, fuel: FuelProperties) -> FloatArray:
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.asarray(1.0 / stoichiometric_fuel_air_ratio(air, fuel), dtype=np.float64)
 
@@ -159,7 +162,7 @@ def simulate_engine(
     fuel_temperature: ArrayLike = 298.15,
     charge_air_coolant_temperature: ArrayLike = 298.0,
 ) -> tuple[dict[str, FloatArray], StatusArray]:
-    """Plant-like sensor values of a turbocharged engine-generator set.
+    r"""Plant-like sensor values of a turbocharged engine-generator set.
 
     Parameters
     ----------
@@ -212,11 +215,22 @@ def simulate_engine(
 
     Notes
     -----
+    .. math::
+
+        m_f = \frac{P_b}{\eta_b LHV}, \quad m_a = \lambda A_{st} m_f, \quad
+        m_a h_a(T_0) + m_f (h_f + \eta_{comb} LHV) = P_b + \sum Q + m_g h_g(T_{exh})
+
     m_f = P_b / (eta_b LHV), P_b = P_gen / eta_gen + P_mech; m_a = lambda A_st m_f (humid
     air); receiver density m_ch / (eta_v V_d n_cyc) and pressure p = rho Z R T; compressor
     outlet p_rec / (1 - dp_ic), outlet temperature from eta_c
-    (:func:`models.compressor.compressor_discharge_temperature`); exhaust temperature from
-    eq. (1) of the module; O2 from :func:`models.components.reciprocating.exhaust_oxygen`.
+    (:func:`models.components.compressor.compressor_discharge_temperature`); exhaust temperature
+    from eq. (1) of the module; O2 from :func:`models.components.reciprocating.exhaust_oxygen`.
+
+    References
+    ----------
+    .. [1] J. B. Heywood, *Internal Combustion Engine Fundamentals*, 2nd ed., McGraw-Hill,
+       2018, ch. 2 and 4.
+    .. [2] ISO 3046-1:2002 (power, fuel consumption, reference conditions).
     """
     T0, p0, rh, Pg, w, eta_b, lam, eta_v, Tr, eta_c = (
         np.asarray(v, dtype=np.float64)
@@ -242,12 +256,12 @@ def simulate_engine(
     lhv = np.asarray(fuel.lhv, dtype=np.float64)
     air, status = _air(T0, p0, rh)
     status = np.array(np.broadcast_to(status, shape))
-    Pb, st = machine.shaft_power(Pg, generator_efficiency, mechanical_loss)
+    Pb, st = generator.shaft_power(Pg, generator_efficiency, mechanical_loss)
     status |= st
     with np.errstate(invalid="ignore"):
-        _flag(status, ~((eta_b > 0) & (eta_b < 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
-        _flag(status, ~((eta_c > 0) & (eta_c <= 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
-        _flag(status, ~(lam >= 1) | ~(eta_v > 0) | ~(w > 0) | ~(Tr > 0), Reason.INPUT_NONPHYSICAL)
+        flag(status, ~((eta_b > 0) & (eta_b < 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
+        flag(status, ~((eta_c > 0) & (eta_c <= 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
+        flag(status, ~(lam >= 1) | ~(eta_v > 0) | ~(w > 0) | ~(Tr > 0), Reason.INPUT_NONPHYSICAL)
     m_f = Pb / (eta_b * lhv)
     eta_comb = np.asarray(combustion_efficiency, dtype=np.float64)
     m_a = lam * _stoich_air(air, fuel) * m_f
@@ -256,7 +270,7 @@ def simulate_engine(
     rho = m_ch / (eta_v * geometry.displacement * geometry.cycles_per_second(w))
     p_r = rho * charge.R * Tr
     for _ in range(6):  # p = rho Z(T, p) R T; Z - 1 ~ 1e-3 so each pass gains three digits
-        p_r = rho * charge.R * Tr * gas.compressibility(Tr, p_r)
+        p_r = rho * charge.R * Tr * mixtures.compressibility(Tr, p_r)
     p_in = p0 * (1.0 - np.asarray(inlet_pressure_loss))
     p_out = p_r / (1.0 - np.asarray(intercooler_pressure_loss))
     T_out, st = compressor_discharge_temperature(charge, T0, p_in, p_out, eta_c)
@@ -272,7 +286,7 @@ def simulate_engine(
     h_g = (m_a * air.h(T0) + m_f * (h_f + eta_comb * lhv) - Pb - Q_jw - Q_lo - Q_cac - Q_rad) / m_g
     T_exh, st = g.T_from_h(h_g, T_guess=np.full(shape, 700.0))
     status |= st
-    _flag(status, (status == 0) & ~(T_exh > T0), Reason.ENERGY_BALANCE_INFEASIBLE)
+    flag(status, (status == 0) & ~(T_exh > T0), Reason.ENERGY_BALANCE_INFEASIBLE)
     x_dry, st = rc.exhaust_oxygen(lam, fuel, air, "dry")
     status |= st
     x_wet, st = rc.exhaust_oxygen(lam, fuel, air, "wet")
@@ -352,7 +366,7 @@ def reconstruct_engine(
     iso3046_exponents: Iso3046Exponents | None = None,
     mechanical_efficiency: ArrayLike = 0.85,
 ) -> EngineResult:
-    """Every figure of a reciprocating engine set from one batch of measurements.
+    r"""Every figure of a reciprocating engine set from one batch of measurements.
 
     Parameters
     ----------
@@ -406,6 +420,11 @@ def reconstruct_engine(
 
     Notes
     -----
+    .. math::
+
+        q_{in} = \frac{\eta_{comb}\, m_f\, LHV}{m_{ch}}, \qquad
+        \eta_{rel} = \frac{\eta_b}{\eta_{ideal}}
+
     Air flow: measured, else lambda from the exhaust O2 times A_st m_f.  The ideal cycles
     start at the receiver state (charge-air temperature and pressure) with
     q_in = eta_comb m_f LHV / m_ch; air standard with gamma = 1.4 and R of dry air, the
@@ -423,7 +442,7 @@ def reconstruct_engine(
 
     >>> import math
     >>> from models.components.reciprocating import EngineGeometry
-    >>> from models.fuel import gas_fuel
+    >>> from models.properties.fuel import gas_fuel
     >>> kr_ge1 = EngineGeometry(0.21, 0.24, 0.48, 20, 12.5)
     >>> ng = gas_fuel({"CH4": 0.93, "C2H6": 0.04, "C3H8": 0.01, "N2": 0.01, "CO2": 0.01})
     >>> s, _ = simulate_engine(

@@ -1,5 +1,4 @@
-"""Correction of reciprocating-engine power and fuel consumption to standard reference
-conditions after ISO 3046-1.
+"""Correction of engine power and fuel consumption to reference conditions after ISO 3046-1.
 
 Standard reference conditions (ISO 3046-1:2002, clause 5; from memory of the clause number,
 the values are the ones every engine data sheet quotes)::
@@ -19,8 +18,8 @@ Method (ISO 3046-1 power adjustment, the "general method" also used by ISO 15550
 k is the ratio of indicated power (site x over reference r), alpha the power adjustment
 factor, beta the fuel consumption adjustment factor, eta_m the mechanical efficiency at the
 declared power, p_s the saturation pressure of water at the air temperature (IAPWS, via
-:func:`models.gas.saturation_pressure`), and (a, m, n, s) the humidity factor and exponents
-of the engine type (:data:`ISO3046_EXPONENTS`).  The 0.7 is the standard's share of the
+:func:`models.properties.humid_air.saturation_pressure`), and (a, m, n, s) the humidity factor and
+exponents of the engine type (:data:`ISO3046_EXPONENTS`).  The 0.7 is the standard's share of the
 friction losses that stays constant.  Measured site values are corrected to reference by
 inverting (4): ``P_r = P_x / alpha``, ``b_r = b_x / beta`` (and the fuel flow at that power
 ``B_r = B_x / k``: the indicated efficiency is held).
@@ -62,8 +61,8 @@ from types import MappingProxyType
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from models import gas
-from models.status import Reason
+from models.properties import humid_air
+from models.status import Reason, flag
 
 __all__ = [
     "FRICTION_SHARE",
@@ -89,10 +88,6 @@ FRICTION_SHARE: float = 0.7
 _P_RANGE = (60.0e3, 110.0e3)  # Pa
 _T_RANGE = (243.0, 333.0)  # K
 _TC_RANGE = (273.0, 333.0)  # K
-
-
-def _flag(status: StatusArray, mask: NDArray[np.bool_], reason: Reason) -> None:
-    np.bitwise_or(status, np.uint32(reason), out=status, where=mask)
 
 
 @dataclass(frozen=True)
@@ -170,7 +165,7 @@ def indicated_power_ratio(
     *,
     reference: Iso3046Reference = STANDARD_REFERENCE,
 ) -> tuple[FloatArray, StatusArray]:
-    """Ratio of indicated power k of ISO 3046-1, eq. (1) of the module.
+    r"""Ratio of indicated power k of ISO 3046-1, eq. (1) of the module.
 
     Parameters
     ----------
@@ -199,8 +194,8 @@ def indicated_power_ratio(
     Notes
     -----
     .. math::
-        k = \\left(\\frac{p_x - a \\varphi_x p_{sx}}{p_r - a \\varphi_r p_{sr}}\\right)^m
-        \\left(\\frac{T_r}{T_x}\\right)^n \\left(\\frac{T_{cr}}{T_{cx}}\\right)^s
+        k = \left(\frac{p_x - a \varphi_x p_{sx}}{p_r - a \varphi_r p_{sr}}\right)^m
+        \left(\frac{T_r}{T_x}\right)^n \left(\frac{T_{cr}}{T_{cx}}\right)^s
 
     References
     ----------
@@ -239,12 +234,12 @@ def indicated_power_ratio(
                 | (uses_tc & ((tb < _TC_RANGE[0]) | (tb > _TC_RANGE[1])))
             )
         )
-    _flag(status, miss, Reason.INPUT_MISSING)
-    _flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
-    _flag(status, outside, Reason.CORRECTION_UNAVAILABLE)
+    flag(status, miss, Reason.INPUT_MISSING)
+    flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
+    flag(status, outside, Reason.CORRECTION_UNAVAILABLE)
     ok = status == 0
-    ps = gas.saturation_pressure(np.where(ok, Tb, 298.0))
-    ps_r = float(gas.saturation_pressure(reference.temperature))
+    ps = humid_air.saturation_pressure(np.where(ok, Tb, 298.0))
+    ps_r = float(humid_air.saturation_pressure(reference.temperature))
     a, m, n, s = exponents.a, exponents.m, exponents.n, exponents.s
     dry_x = np.where(ok, pb, 1.0e5) - a * np.where(ok, rb, 0.0) * ps
     dry_r = reference.pressure - a * reference.relative_humidity * ps_r
@@ -252,14 +247,14 @@ def indicated_power_ratio(
         k = (dry_x / dry_r) ** m * (reference.temperature / np.where(ok, Tb, 298.0)) ** n
         if uses_tc:
             k = k * (reference.charge_air_coolant_temperature / np.where(ok, tb, 298.0)) ** s
-    _flag(status, ok & ~(k > 0), Reason.CORRECTION_UNAVAILABLE)
+    flag(status, ok & ~(k > 0), Reason.CORRECTION_UNAVAILABLE)
     return np.where(status != 0, np.nan, k), status
 
 
 def power_adjustment_factor(
     indicated_power_ratio: ArrayLike, mechanical_efficiency: ArrayLike
 ) -> tuple[FloatArray, StatusArray]:
-    """Power adjustment factor alpha = k - 0.7 (1 - k)(1/eta_m - 1), eq. (2).
+    r"""Power adjustment factor alpha = k - 0.7 (1 - k)(1/eta_m - 1), eq. (2).
 
     Parameters
     ----------
@@ -277,6 +272,10 @@ def power_adjustment_factor(
 
     Notes
     -----
+    .. math::
+
+        \alpha = k - 0.7\,(1 - k) \left(\frac{1}{\eta_m} - 1\right)
+
     Friction power held at FRICTION_SHARE of its reference value, indicated efficiency held.
 
     References
@@ -294,19 +293,25 @@ def power_adjustment_factor(
     shape = np.broadcast_shapes(k.shape, eta.shape)
     status = np.zeros(shape, dtype=np.uint32)
     kb, eb = np.broadcast_to(k, shape), np.broadcast_to(eta, shape)
-    _flag(status, np.isnan(kb) | np.isnan(eb), Reason.INPUT_MISSING)
+    flag(status, np.isnan(kb) | np.isnan(eb), Reason.INPUT_MISSING)
     with np.errstate(invalid="ignore", divide="ignore"):
-        _flag(status, ~np.isnan(eb) & ~((eb > 0) & (eb <= 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
-        _flag(status, ~np.isnan(kb) & ~(kb > 0), Reason.CORRECTION_UNAVAILABLE)
+        flag(status, ~np.isnan(eb) & ~((eb > 0) & (eb <= 1)), Reason.EFFICIENCY_OUT_OF_RANGE)
+        flag(status, ~np.isnan(kb) & ~(kb > 0), Reason.CORRECTION_UNAVAILABLE)
         alpha = kb - FRICTION_SHARE * (1.0 - kb) * (1.0 / eb - 1.0)
-        _flag(status, (status == 0) & ~(alpha > 0), Reason.CORRECTION_UNAVAILABLE)
+        flag(status, (status == 0) & ~(alpha > 0), Reason.CORRECTION_UNAVAILABLE)
     return np.where(status != 0, np.nan, alpha), status
 
 
 def fuel_consumption_adjustment_factor(
     indicated_power_ratio: ArrayLike, power_adjustment_factor: ArrayLike
 ) -> FloatArray:
-    """Fuel consumption adjustment factor beta = k / alpha [-], eq. (3) (NaN propagates).
+    r"""Fuel consumption adjustment factor beta = k / alpha [-], eq. (3) (NaN propagates).
+
+    Notes
+    -----
+    .. math::
+
+        \beta = \frac{k}{\alpha}
 
     References
     ----------
@@ -360,7 +365,7 @@ def iso3046_correction(
     brake_heat_rate: ArrayLike = np.nan,
     reference: Iso3046Reference = STANDARD_REFERENCE,
 ) -> Iso3046Correction:
-    """Brake power and specific fuel consumption at site, corrected to reference conditions.
+    r"""Brake power and specific fuel consumption at site, corrected to reference conditions.
 
     Parameters
     ----------
@@ -387,6 +392,10 @@ def iso3046_correction(
 
     Notes
     -----
+    .. math::
+
+        P_r = \frac{P_x}{\alpha}, \qquad b_r = \frac{b_x}{\beta}, \qquad B_r = \frac{B_x}{k}
+
     P_r = P_x / alpha, b_r = b_x / beta, eqs. (1)-(4) of the module.  The method adjusts the
     power an engine can *deliver*: it is meaningful at full (declared) load.  At part load the
     corrected power answers "what would this fuel rack give at reference conditions" only in
@@ -422,10 +431,10 @@ def iso3046_correction(
     shape = np.broadcast_shapes(status.shape, P.shape, b.shape, hr.shape)
     status = np.array(np.broadcast_to(status, shape))
     Pb, bb = np.broadcast_to(P, shape), np.broadcast_to(b, shape)
-    _flag(status, np.isnan(Pb) | np.isnan(bb), Reason.INPUT_MISSING)
+    flag(status, np.isnan(Pb) | np.isnan(bb), Reason.INPUT_MISSING)
     with np.errstate(invalid="ignore"):
-        _flag(status, ~np.isnan(Pb) & ~(Pb > 0), Reason.INPUT_NONPHYSICAL)
-        _flag(status, ~np.isnan(bb) & ~(bb > 0), Reason.INPUT_NONPHYSICAL)
+        flag(status, ~np.isnan(Pb) & ~(Pb > 0), Reason.INPUT_NONPHYSICAL)
+        flag(status, ~np.isnan(bb) & ~(bb > 0), Reason.INPUT_NONPHYSICAL)
     bad = status != 0
 
     def out(a: ArrayLike) -> FloatArray:
@@ -454,7 +463,7 @@ def spark_ignition_correction_factor(
     ambient_temperature: ArrayLike,
     ambient_relative_humidity: ArrayLike,
 ) -> tuple[FloatArray, StatusArray]:
-    """Correction factor of spark-ignition engines to 99 kPa dry air and 298 K (ISO 1585).
+    r"""Correction factor of spark-ignition engines to 99 kPa dry air and 298 K (ISO 1585).
 
     Parameters
     ----------
@@ -474,7 +483,7 @@ def spark_ignition_correction_factor(
 
     Notes
     -----
-    .. math:: \\alpha_a = (99\\,\\mathrm{kPa} / p_d)^{1.2} (T / 298\\,\\mathrm{K})^{0.6}
+    .. math:: \alpha_a = (99\,\mathrm{kPa} / p_d)^{1.2} (T / 298\,\mathrm{K})^{0.6}
 
     with the dry-air pressure p_d = p - phi p_s(T).  99 kPa dry is the ISO 3046-1 reference
     (100 kPa at 30 % RH and 25 °C).  Validity as stated in ISO 1585 (from memory):
@@ -502,11 +511,11 @@ def spark_ignition_correction_factor(
     miss = np.isnan(pb) | np.isnan(Tb) | np.isnan(rb)
     with np.errstate(invalid="ignore"):
         nonphys = ~miss & ((pb <= 0) | (Tb <= 0) | (rb < 0) | (rb > 1))
-    _flag(status, miss, Reason.INPUT_MISSING)
-    _flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
+    flag(status, miss, Reason.INPUT_MISSING)
+    flag(status, nonphys, Reason.INPUT_NONPHYSICAL)
     ok = status == 0
     Ts = np.where(ok, Tb, 298.0)
-    pd = np.where(ok, pb, 1e5) - np.where(ok, rb, 0.0) * gas.saturation_pressure(Ts)
+    pd = np.where(ok, pb, 1e5) - np.where(ok, rb, 0.0) * humid_air.saturation_pressure(Ts)
     with np.errstate(invalid="ignore", divide="ignore"):
         alpha = (99.0e3 / pd) ** 1.2 * (Ts / 298.0) ** 0.6
         outside = ok & (
@@ -517,5 +526,5 @@ def spark_ignition_correction_factor(
             | (pd < _SI_PD_RANGE[0])
             | (pd > _SI_PD_RANGE[1])
         )
-    _flag(status, outside, Reason.CORRECTION_UNAVAILABLE)
+    flag(status, outside, Reason.CORRECTION_UNAVAILABLE)
     return np.where(status != 0, np.nan, alpha), status

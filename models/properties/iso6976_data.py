@@ -12,8 +12,8 @@ published digits) and against the 25 °C gross values of Table A.4 quoted in the
 physics notes.
 
 Only a subset of the standard's 60 components is typed: the fuel species of
-:mod:`models.species` plus a few further hydrocarbons (neopentane, n-heptane, n-octane,
-ethylene, propylene) and SO2, which :func:`models.fuel.iso6976` accepts.
+:mod:`models.properties.species` plus a few further hydrocarbons (neopentane, n-heptane, n-octane,
+ethylene, propylene) and SO2, which :func:`models.properties.fuel.iso6976` accepts.
 """
 
 from __future__ import annotations
@@ -161,7 +161,7 @@ _TABLE: dict[str, Component] = {
 }
 # fmt: on
 
-#: The typed components, keyed by brayscope species name (see :mod:`models.species`).
+#: The typed components, keyed by brayscope species name (see :mod:`models.properties.species`).
 COMPONENTS: MappingProxyType[str, Component] = MappingProxyType(_TABLE)
 
 _TOL_C = 1e-6
@@ -177,40 +177,88 @@ def _column(t_C: float, temps: tuple[float, ...]) -> int | None:
 
 
 def combustion_column(t_C: float) -> int | None:
-    """Column index of the calorific-value table for ``t_C`` [°C], or None if not tabulated."""
+    r"""Column index of the calorific-value table for ``t_C`` [°C], or None if not tabulated.
+
+    References
+    ----------
+    .. [1] ISO 6976:2016, Natural gas — Calculation of calorific values, density, relative
+       density and Wobbe indices from composition, Table A.4 (columns).
+    """
     return _column(float(t_C), COMBUSTION_TEMPERATURES_C)
 
 
 def metering_column(t_C: float) -> int | None:
-    """Column index of the summation-factor table for ``t_C`` [°C], or None if not tabulated."""
+    r"""Column index of the summation-factor table for ``t_C`` [°C], or None if not tabulated.
+
+    References
+    ----------
+    .. [1] ISO 6976:2016, Natural gas — Calculation of calorific values, density, relative
+       density and Wobbe indices from composition, Table A.3 (columns).
+    """
     return _column(float(t_C), METERING_TEMPERATURES_C)
 
 
 def molar_mass(names: tuple[str, ...]) -> NDArray[np.float64]:
-    """Molar masses of ``names`` [kg/mol] (ISO 6976:2016 Table A.2)."""
+    r"""Molar masses of ``names`` [kg/mol] (ISO 6976:2016 Table A.2).
+
+    References
+    ----------
+    .. [1] ISO 6976:2016, Natural gas — Calculation of calorific values, density, relative
+       density and Wobbe indices from composition, Table A.2.
+    """
     return np.array([COMPONENTS[n].molar_mass for n in names]) * 1e-3
 
 
 def atoms(names: tuple[str, ...]) -> NDArray[np.float64]:
-    """Atom counts of ``names``, shape ``(len(names), 7)``, columns C, H, N, O, S, He, Ar."""
+    r"""Atom counts of ``names``, shape ``(len(names), 7)``, columns C, H, N, O, S, He, Ar.
+
+    References
+    ----------
+    .. [1] ISO 6976:2016, Natural gas — Calculation of calorific values, density, relative
+       density and Wobbe indices from composition, Table A.2 (component formulae).
+    """
     return np.array([COMPONENTS[n].atoms for n in names], dtype=np.float64)
 
 
 def summation_factor(names: tuple[str, ...], column: int) -> NDArray[np.float64]:
-    """Summation factors s_i [-] at metering-table ``column`` (ISO 6976:2016 Table A.3)."""
+    r"""Summation factors s_i [-] at metering-table ``column`` (ISO 6976:2016 Table A.3).
+
+    References
+    ----------
+    .. [1] ISO 6976:2016, Natural gas — Calculation of calorific values, density, relative
+       density and Wobbe indices from composition, Table A.3.
+    """
     return np.array([COMPONENTS[n].s[column] for n in names])
 
 
 def gross_molar(names: tuple[str, ...], column: int) -> NDArray[np.float64]:
-    """Ideal-gas gross molar calorific values [J/mol] at combustion-table ``column`` (Table A.4)."""
+    r"""Ideal-gas gross molar calorific values [J/mol] at combustion-table ``column`` (Table A.4).
+
+    References
+    ----------
+    .. [1] ISO 6976:2016, Natural gas — Calculation of calorific values, density, relative
+       density and Wobbe indices from composition, Table A.4.
+    """
     return np.array([COMPONENTS[n].hc[column] for n in names]) * 1e3
 
 
 def enthalpy_of_vaporization(column: int) -> float:
-    """Standard enthalpy of vaporization of water L° [J/mol] at combustion-table ``column``."""
+    r"""Return the standard enthalpy of vaporization of water L° [J/mol] at table ``column``.
+
+    References
+    ----------
+    .. [1] ISO 6976:2016, Natural gas — Calculation of calorific values, density, relative
+       density and Wobbe indices from composition, Table A.4 (water row).
+    """
     return _L_VAP[column] * 1e3
 
 
 def z_air(column: int) -> float:
-    """Compression factor of dry air at 101.325 kPa at metering-table ``column`` (Table A.1)."""
+    r"""Compression factor of dry air at 101.325 kPa at metering-table ``column`` (Table A.1).
+
+    References
+    ----------
+    .. [1] ISO 6976:2016, Natural gas — Calculation of calorific values, density, relative
+       density and Wobbe indices from composition, Table A.1.
+    """
     return _Z_AIR[column]

@@ -1,0 +1,1 @@
+"""Properties of the working fluids: species data, ideal-gas mixtures, the fast kernel, fuels."""

@@ -1,0 +1,1 @@
+"""The single-shaft gas turbine unit type: schema, input checks, reconstruction, forward model."""

@@ -1,0 +1,1 @@
+"""Reciprocating engine sets: forward model and reconstruction shared by their unit types."""
